@@ -1,0 +1,244 @@
+//! `$readmemh` hex writers: one word per line, exactly two lowercase digits per byte,
+//! most-significant digit first, LF line ends; per-channel images get a `// label` comment
+//! and an `@word_address` line before each segment.
+
+use std::io::Write;
+
+use super::{check_word_bytes, words_for, ImageError};
+
+/// Buffered output is flushed to the writer once it holds this many bytes, so an unbuffered
+/// writer is not called once per line.
+const FLUSH_AT: usize = 1 << 16;
+
+/// One region of a per-channel hex image.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Segment<'a> {
+    /// Word address of the region's first word.
+    pub word_addr: u64,
+    /// The region's bytes in device order; the last word is zero-padded.
+    pub bytes: &'a [u8],
+    /// Name written in the comment line before the region (no line breaks).
+    pub label: &'a str,
+}
+
+/// Writes `bytes` as hex words from address 0; returns the number of words written.
+pub fn write_hex<W: Write>(w: &mut W, word_bytes: usize, bytes: &[u8]) -> Result<u64, ImageError> {
+    check_word_bytes(word_bytes)?;
+    let mut out = Lines::new(w);
+    out.words(word_bytes, bytes)?;
+    out.finish()?;
+    Ok(words_for(bytes.len() as u64, word_bytes as u64))
+}
+
+/// Writes segments, each as `// label`, `@addr` (lowercase hex word address) and its words;
+/// returns the number of words written.
+///
+/// Segments must be sorted by address and must not overlap; this is checked before anything
+/// is written, so a refused image leaves the writer untouched.
+pub fn write_hex_segments<W: Write>(
+    w: &mut W,
+    word_bytes: usize,
+    segments: &[Segment],
+) -> Result<u64, ImageError> {
+    check_word_bytes(word_bytes)?;
+    let mut total = 0u64;
+    let mut prev: Option<(&Segment, u64)> = None;
+    for seg in segments {
+        if seg.label.contains(['\n', '\r']) {
+            return Err(ImageError::SegmentLabel(seg.label.to_string()));
+        }
+        let words = words_for(seg.bytes.len() as u64, word_bytes as u64);
+        let end = seg
+            .word_addr
+            .checked_add(words)
+            .ok_or_else(|| ImageError::SegmentTooFar(seg.label.to_string()))?;
+        if let Some((before, prev_end)) = prev {
+            if seg.word_addr < prev_end {
+                return Err(ImageError::SegmentOrder {
+                    label: seg.label.to_string(),
+                    start: seg.word_addr,
+                    prev_label: before.label.to_string(),
+                    prev_end,
+                });
+            }
+        }
+        prev = Some((seg, end));
+        total += words;
+    }
+    let mut out = Lines::new(w);
+    for seg in segments {
+        out.text(&format!("// {}\n@{:x}\n", seg.label, seg.word_addr))?;
+        out.words(word_bytes, seg.bytes)?;
+    }
+    out.finish()?;
+    Ok(total)
+}
+
+/// Hex lines gathered in a buffer in front of a writer.
+struct Lines<'w, W: Write> {
+    w: &'w mut W,
+    buf: Vec<u8>,
+}
+
+impl<'w, W: Write> Lines<'w, W> {
+    fn new(w: &'w mut W) -> Self {
+        Lines {
+            w,
+            buf: Vec::with_capacity(FLUSH_AT + 2 * super::MAX_WORD_BYTES + 1),
+        }
+    }
+
+    fn text(&mut self, text: &str) -> std::io::Result<()> {
+        self.buf.extend_from_slice(text.as_bytes());
+        self.spill()
+    }
+
+    /// One line per word; bytes missing from a short last word print as `00`.
+    fn words(&mut self, word_bytes: usize, bytes: &[u8]) -> std::io::Result<()> {
+        const DIGITS: &[u8; 16] = b"0123456789abcdef";
+        for word in bytes.chunks(word_bytes) {
+            for i in (0..word_bytes).rev() {
+                let b = word.get(i).copied().unwrap_or(0);
+                self.buf.push(DIGITS[usize::from(b >> 4)]);
+                self.buf.push(DIGITS[usize::from(b & 0xf)]);
+            }
+            self.buf.push(b'\n');
+            self.spill()?;
+        }
+        Ok(())
+    }
+
+    fn spill(&mut self) -> std::io::Result<()> {
+        if self.buf.len() >= FLUSH_AT {
+            self.w.write_all(&self.buf)?;
+            self.buf.clear();
+        }
+        Ok(())
+    }
+
+    fn finish(self) -> std::io::Result<()> {
+        self.w.write_all(&self.buf)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn hex(word_bytes: usize, bytes: &[u8]) -> (u64, String) {
+        let mut out = Vec::new();
+        let words = write_hex(&mut out, word_bytes, bytes).unwrap();
+        (words, String::from_utf8(out).unwrap())
+    }
+
+    #[test]
+    fn two_u32_elements_share_a_64_bit_word_element_0_low() {
+        // Common practice: byte 0 of the stream is the least-significant byte of word 0, so
+        // element 0 of a u32 array fills the low half and prints last.
+        let bytes = [0x1122_3344u32.to_le_bytes(), 0xAABB_CCDDu32.to_le_bytes()].concat();
+        assert_eq!(hex(8, &bytes), (1, "aabbccdd11223344\n".to_string()));
+    }
+
+    #[test]
+    fn narrowest_and_widest_words() {
+        assert_eq!(hex(1, &[0x00, 0xff, 0x5a]), (3, "00\nff\n5a\n".to_string()));
+        let bytes: Vec<u8> = (0..1024u32).map(|i| i as u8).collect();
+        let (words, text) = hex(512, &bytes);
+        assert_eq!(words, 2);
+        let lines: Vec<&str> = text.lines().collect();
+        assert_eq!(lines.len(), 2);
+        for line in lines {
+            // 4096 bits = 1024 digits; byte 511 (0xff) first, byte 0 (0x00) last.
+            assert_eq!(line.len(), 1024);
+            assert!(line.starts_with("fffefdfc") && line.ends_with("03020100"));
+            // Digits 510..514 are bytes 256 (0x00) and 255 (0xff).
+            assert_eq!(&line[510..514], "00ff");
+        }
+    }
+
+    #[test]
+    fn empty_input_writes_no_words() {
+        assert_eq!(hex(4, &[]), (0, String::new()));
+    }
+
+    #[test]
+    fn the_last_word_is_zero_padded() {
+        assert_eq!(
+            hex(4, &[1, 2, 3, 4, 0xaa, 0xbb, 0xcc]),
+            (2, "04030201\n00ccbbaa\n".to_string())
+        );
+    }
+
+    #[test]
+    fn segments_get_a_label_and_an_address_line() {
+        let segments = [
+            Segment {
+                word_addr: 0,
+                bytes: &[0x11, 0x22, 0x33, 0x44, 0x55],
+                label: "ch0 keys",
+            },
+            Segment {
+                word_addr: 0x1a0,
+                bytes: &[0xaa, 0xbb, 0xcc, 0xdd],
+                label: "ch1 keys",
+            },
+        ];
+        let mut out = Vec::new();
+        assert_eq!(write_hex_segments(&mut out, 4, &segments).unwrap(), 3);
+        assert_eq!(
+            String::from_utf8(out).unwrap(),
+            "// ch0 keys\n@0\n44332211\n00000055\n// ch1 keys\n@1a0\nddccbbaa\n"
+        );
+    }
+
+    #[test]
+    fn segments_out_of_order_or_overlapping_are_refused() {
+        let seg = |word_addr, label| Segment {
+            word_addr,
+            bytes: &[0; 8],
+            label,
+        };
+        let err = |segments: &[Segment]| {
+            let mut out = Vec::new();
+            let err = write_hex_segments(&mut out, 4, segments).unwrap_err();
+            assert!(out.is_empty(), "nothing is written before the check");
+            err.to_string()
+        };
+        assert_eq!(
+            err(&[seg(0, "a"), seg(1, "b")]),
+            "segment `b` starts at word @1, before the end (@2) of segment `a`"
+        );
+        assert_eq!(
+            err(&[seg(0x10, "a"), seg(0, "b")]),
+            "segment `b` starts at word @0, before the end (@12) of segment `a`"
+        );
+        assert_eq!(
+            err(&[seg(u64::MAX, "top")]),
+            "segment `top` runs past the last word address"
+        );
+        assert_eq!(
+            err(&[seg(0, "a\nb")]),
+            "segment label `a\\nb` contains a line break"
+        );
+        let mut out = Vec::new();
+        assert_eq!(
+            write_hex_segments(&mut out, 4, &[seg(0, "a"), seg(2, "b")]).unwrap(),
+            4
+        );
+    }
+
+    #[test]
+    fn writer_failures_are_reported() {
+        struct Full;
+        impl Write for Full {
+            fn write(&mut self, _: &[u8]) -> std::io::Result<usize> {
+                Err(std::io::Error::other("disk full"))
+            }
+            fn flush(&mut self) -> std::io::Result<()> {
+                Ok(())
+            }
+        }
+        let err = write_hex(&mut Full, 4, &[1, 2, 3, 4]).unwrap_err();
+        assert_eq!(err.to_string(), "I/O error: disk full");
+    }
+}

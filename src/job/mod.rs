@@ -1,0 +1,54 @@
+//! Jobs: the TOML job file, checking it into a plan, and running the plan into an output
+//! directory (inputs, golden outputs, ledger, memory map, manifest, timing).
+//!
+//! ```text
+//!   job.toml ─► spec ─► prepare (source, predicate, partitions, memory map) ─► run ─► OutDir
+//! ```
+
+pub mod outdir;
+pub mod prepare;
+pub mod run;
+pub mod spec;
+
+pub use outdir::{check_target, sha256_hex, OutDir};
+pub use prepare::{prepare, Prepared};
+pub use run::{run_into, RunSummary};
+pub use spec::JobSpec;
+
+use std::path::Path;
+
+use crate::error::{Error, Result};
+
+/// Runs `spec` into `out` (or, with `seeds`, once per seed into `out/seed-N/`); the
+/// directory appears only when every run succeeded.
+pub fn run(
+    spec: &JobSpec,
+    job_dir: &Path,
+    out: &Path,
+    force: bool,
+    seeds: Option<std::ops::Range<u64>>,
+    progress: &mut dyn FnMut(usize, usize),
+) -> Result<Vec<(Option<u64>, RunSummary)>> {
+    let plans: Vec<(Option<u64>, Prepared)> = match seeds {
+        None => vec![(None, prepare(spec, job_dir)?)],
+        Some(r) => {
+            if r.is_empty() {
+                return Err(Error::input(format!("--seeds {}..{} is empty", r.start, r.end)));
+            }
+            r.map(|seed| {
+                let mut s = spec.clone();
+                s.input.seed = seed;
+                prepare(&s, job_dir).map(|p| (Some(seed), p))
+            })
+            .collect::<Result<_>>()?
+        }
+    };
+    let dir = OutDir::create(out, force)?;
+    let mut results = Vec::new();
+    for (seed, prep) in &plans {
+        let prefix = seed.map(|s| format!("seed-{s}/")).unwrap_or_default();
+        results.push((*seed, run_into(prep, &dir, &prefix, progress)?));
+    }
+    dir.commit()?;
+    Ok(results)
+}

@@ -1,0 +1,24 @@
+//! The kernels: they compute results and count their traffic into a ledger. They know
+//! tables, layout and the ledger, never file formats or the terminal.
+
+pub mod predicate;
+pub mod scan;
+
+use crate::kernels::predicate::Value;
+use crate::table::{Column, ColumnData};
+
+/// Row `r` of `col` as a predicate value (for the row-at-a-time oracles).
+pub fn value_at(col: &Column, r: usize) -> Value {
+    match &col.data {
+        ColumnData::U8(v) => Value::U(u64::from(v[r])),
+        ColumnData::U16(v) => Value::U(u64::from(v[r])),
+        ColumnData::U32(v) => Value::U(u64::from(v[r])),
+        ColumnData::U64(v) => Value::U(v[r]),
+        ColumnData::I8(v) => Value::I(i64::from(v[r])),
+        ColumnData::I16(v) => Value::I(i64::from(v[r])),
+        ColumnData::I32(v) => Value::I(i64::from(v[r])),
+        ColumnData::I64(v) => Value::I(v[r]),
+        ColumnData::F32(v) => Value::F(f64::from(v[r])),
+        ColumnData::F64(v) => Value::F(v[r]),
+    }
+}

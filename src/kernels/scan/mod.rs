@@ -1,0 +1,259 @@
+//! Predicate scan: for each partition, the rows matching a predicate, as row ids, a packed
+//! bitmap, or the projected columns of the matching rows, plus the match count.
+//!
+//! ```text
+//!   column chunks ──► leaf masks (64 rows/word, vector compares) ──► and/or/not
+//!        │                                                            │
+//!        └─ device reads counted per chunk            compaction ◄────┘
+//!                                                       │
+//!                                 output region + count word (device writes)
+//! ```
+//!
+//! Work is split into chunks of [`CHUNK_ROWS`] rows handled by rayon; chunk results are
+//! joined in chunk order, so the output is byte-identical for any thread count. Chunks
+//! start on word boundaries of every column image, so per-chunk word counts add up to
+//! the whole partition's.
+
+mod mask;
+
+pub use mask::{compact, Isa, RowId};
+
+use rayon::prelude::*;
+
+use crate::kernels::predicate::Bound;
+use crate::ledger::{Cursor, Direction, Key, Ledger, Phase, Traffic};
+use crate::table::{byte_len, column_bytes, ElemType, Table};
+
+/// Rows per chunk of work: a multiple of 64 (one mask word) and of every word granule up
+/// to 4096-bit words, small enough that a chunk's masks stay in L1.
+pub const CHUNK_ROWS: usize = 16384;
+
+/// The scan's phase name in the ledger.
+pub const PHASE: Phase = Phase::single("scan");
+
+/// What the scan writes for the matching rows.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum ScanOutput {
+    /// Row ids, `u32` (or `u64` when `wide_ids`), ascending.
+    RowIds,
+    /// One bit per partition row, LSB-first, `ceil(rows/8)` bytes.
+    Bitmap,
+    /// The listed columns (table indices) of each matching row, as packed
+    /// little-endian records in column-list order.
+    Project(Vec<usize>),
+}
+
+/// Scan parameters shared by every partition.
+#[derive(Debug, Clone)]
+pub struct ScanParams {
+    /// The bound predicate.
+    pub predicate: Bound,
+    /// Output kind.
+    pub output: ScanOutput,
+    /// Row ids count from the table's first row (`true`) or the partition's.
+    pub global_ids: bool,
+    /// Row ids are `u64` rather than `u32`.
+    pub wide_ids: bool,
+}
+
+impl ScanParams {
+    /// Bytes of one output record (a row id, a projected record; 0 for bitmaps), for a
+    /// table whose columns have the element types `types`.
+    pub fn record_bytes(&self, types: &[ElemType]) -> u64 {
+        match &self.output {
+            ScanOutput::RowIds => {
+                if self.wide_ids {
+                    8
+                } else {
+                    4
+                }
+            }
+            ScanOutput::Bitmap => 0,
+            ScanOutput::Project(cols) => cols
+                .iter()
+                .map(|&c| u64::from(types[c].bits() / 8))
+                .sum(),
+        }
+    }
+
+    /// Worst-case output bytes for a partition of `rows` rows (every row matches).
+    pub fn capacity_bytes(&self, types: &[ElemType], rows: u64) -> u64 {
+        match self.output {
+            ScanOutput::Bitmap => rows.div_ceil(8),
+            _ => rows * self.record_bytes(types),
+        }
+    }
+}
+
+/// Where one engine's data lives, for the ledger.
+#[derive(Debug, Clone)]
+pub struct EngineIo {
+    /// Engine index (= partition index).
+    pub engine: u32,
+    /// The partition's channel.
+    pub channel: u32,
+    /// Bytes per memory word.
+    pub word_bytes: u64,
+    /// Base byte address of each table column's partition image (by column index), for
+    /// column-major inputs.
+    pub column_bases: Vec<u64>,
+    /// Base byte address of the partition's record image, for row-major inputs (the
+    /// engine then streams whole records).
+    pub row_base: Option<u64>,
+    /// Base byte address of the output region.
+    pub out_base: u64,
+    /// Byte address of the count word.
+    pub count_base: u64,
+}
+
+/// Bytes of the count word's payload (a little-endian `u64`).
+pub const COUNT_BYTES: u64 = 8;
+
+/// One partition's results.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct ScanResult {
+    /// Output region bytes.
+    pub out: Vec<u8>,
+    /// Matching rows.
+    pub count: u64,
+    /// What the engine read and wrote.
+    pub ledger: Ledger,
+}
+
+struct ChunkOut {
+    masks: Vec<u64>,
+    ids: Vec<u8>,
+    count: u64,
+    read: Traffic,
+}
+
+/// Scans one partition (`table` holds just its rows; `row_start` is its first global row).
+pub fn scan_partition(
+    isa: Isa,
+    table: &Table,
+    row_start: u64,
+    params: &ScanParams,
+    io: &EngineIo,
+) -> ScanResult {
+    let rows = table.rows();
+    let cols = touched_columns(params);
+    let id_base = if params.global_ids { row_start } else { 0 };
+    let chunks: Vec<ChunkOut> = (0..rows.div_ceil(CHUNK_ROWS))
+        .into_par_iter()
+        .map_init(mask::Scratch::default, |scratch, c| {
+            let r = c * CHUNK_ROWS..((c + 1) * CHUNK_ROWS).min(rows);
+            let mut masks = vec![0u64; r.len().div_ceil(64)];
+            mask::eval(isa, &params.predicate, table, r.clone(), &mut masks, scratch);
+            let count = masks.iter().map(|m| u64::from(m.count_ones())).sum();
+            let mut read = Traffic::default();
+            let (start, len) = (r.start as u64, r.len() as u64);
+            if let Some(base) = io.row_base {
+                let rec: u64 = table.columns.iter().map(|c| u64::from(c.ty.bits() / 8)).sum();
+                let mut cur = Cursor::new(base + start * rec, io.word_bytes);
+                cur.touch(len * rec, len);
+                read += cur.traffic;
+            } else {
+                for &ci in &cols {
+                    let ty = table.columns[ci].ty;
+                    let mut cur = Cursor::new(io.column_bases[ci] + byte_len(ty, start), io.word_bytes);
+                    cur.touch(byte_len(ty, len), len);
+                    read += cur.traffic;
+                }
+            }
+            let ids = chunk_records(table, params, &masks, r.start, id_base);
+            ChunkOut {
+                masks,
+                ids,
+                count,
+                read,
+            }
+        })
+        .collect();
+    let count = chunks.iter().map(|c| c.count).sum();
+    let out = match params.output {
+        ScanOutput::Bitmap => {
+            let mut out = Vec::with_capacity(rows.div_ceil(8));
+            for c in &chunks {
+                for m in &c.masks {
+                    out.extend_from_slice(&m.to_le_bytes());
+                }
+            }
+            out.truncate(rows.div_ceil(8));
+            out
+        }
+        _ => {
+            let mut out = Vec::with_capacity(chunks.iter().map(|c| c.ids.len()).sum());
+            for c in &chunks {
+                out.extend_from_slice(&c.ids);
+            }
+            out
+        }
+    };
+    let mut ledger = Ledger::new();
+    let mut read = Traffic::default();
+    for c in &chunks {
+        read += c.read;
+    }
+    let read_key = Key::device(io.engine, PHASE, io.channel, Direction::Read);
+    ledger.add(read_key, read);
+    let mut w = Cursor::new(io.out_base, io.word_bytes);
+    w.touch(out.len() as u64, count);
+    let mut cw = Cursor::new(io.count_base, io.word_bytes);
+    cw.touch(COUNT_BYTES, 0);
+    let write_key = Key::device(io.engine, PHASE, io.channel, Direction::Write);
+    ledger.add(write_key, w.traffic);
+    ledger.add(write_key, cw.traffic);
+    ScanResult { out, count, ledger }
+}
+
+/// The columns an engine streams: those the predicate reads and those it projects
+/// (projected columns are streamed whole, as a column engine reads them; sorted, unique).
+pub fn touched_columns(params: &ScanParams) -> Vec<usize> {
+    let mut cols = params.predicate.columns();
+    if let ScanOutput::Project(p) = &params.output {
+        cols.extend(p);
+    }
+    cols.sort_unstable();
+    cols.dedup();
+    cols
+}
+
+/// The output records of one chunk: row ids or projected rows (empty for bitmaps).
+fn chunk_records(table: &Table, params: &ScanParams, masks: &[u64], start: usize, id_base: u64) -> Vec<u8> {
+    match &params.output {
+        ScanOutput::Bitmap => Vec::new(),
+        ScanOutput::RowIds => {
+            let base = id_base + start as u64;
+            if params.wide_ids {
+                let mut ids: Vec<u64> = Vec::new();
+                compact(masks, base, &mut ids);
+                ids.iter().flat_map(|i| i.to_le_bytes()).collect()
+            } else {
+                let mut ids: Vec<u32> = Vec::new();
+                compact(masks, base, &mut ids);
+                ids.iter().flat_map(|i| i.to_le_bytes()).collect()
+            }
+        }
+        ScanOutput::Project(cols) => {
+            let mut local: Vec<u32> = Vec::new();
+            compact(masks, start as u64, &mut local);
+            let rec: usize = cols.iter().map(|&c| table.columns[c].ty.bits() as usize / 8).sum();
+            let mut out = Vec::with_capacity(local.len() * rec);
+            for &r in &local {
+                for &c in cols {
+                    let r = r as usize;
+                    column_bytes(&table.columns[c], r..r + 1, &mut out);
+                }
+            }
+            out
+        }
+    }
+}
+
+/// The obviously-correct oracle: partition-local ids of matching rows, one row at a time.
+pub fn naive_scan(table: &Table, pred: &Bound) -> Vec<u64> {
+    (0..table.rows())
+        .filter(|&r| pred.eval(&|c| crate::kernels::value_at(&table.columns[c], r)))
+        .map(|r| r as u64)
+        .collect()
+}

@@ -1,0 +1,19 @@
+//! weir: golden memory images, byte ledgers and a fast CPU baseline for data-analytics
+//! accelerator kernels (predicate scan, hash join, linear SGD).
+//!
+//! The library does the work; the `weir` binary is a thin layer over it. See DEVELOPERS.md
+//! for the rooms of the house and the data path between them.
+
+pub mod error;
+pub mod gen;
+pub mod image;
+pub mod job;
+pub mod kernels;
+pub mod layout;
+pub mod ledger;
+pub mod manifest;
+pub mod memmap;
+pub mod npy;
+pub mod table;
+
+pub use error::{Error, ErrorKind, Result};
