@@ -4,6 +4,7 @@
 //! The library does the work; the `weir` binary is a thin layer over it. See DEVELOPERS.md
 //! for the rooms of the house and the data path between them.
 
+pub mod check;
 pub mod error;
 pub mod gen;
 pub mod image;
@@ -13,6 +14,7 @@ pub mod layout;
 pub mod ledger;
 pub mod manifest;
 pub mod memmap;
+pub mod report;
 pub mod npy;
 pub mod table;
 

@@ -1,1 +1,7 @@
-fn main(){}
+//! The `weir` binary: a thin layer over the library (see `cli`).
+
+mod cli;
+
+fn main() -> std::process::ExitCode {
+    cli::main()
+}

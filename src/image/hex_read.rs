@@ -6,13 +6,12 @@
 //! CRLF line ends are accepted. A word with any `x`/`z` digit is [`WordState::Unknown`];
 //! words no token ever reached are [`WordState::Absent`].
 //!
-//! Width rule: `_` is not a digit. A word of W bits takes W/4 digits; fewer are
+//! Width rule: digits are counted without `_`. A word of W bits takes W/4 digits; fewer are
 //! zero-extended. More than W/4 digits are accepted only when every extra leading digit is
 //! `0`, since the value still fits; any other extra digit is an error, because simulators
 //! disagree on it (one truncates, one warns) and a dump must not lose bits silently.
 
-use super::{check_word_bits, WordDump, WordState, MAX_DUMP_BYTES};
-use crate::image::ImageError;
+use super::{check_word_bits, ImageError, WordDump, WordState, MAX_DUMP_BYTES};
 
 /// What is wrong with one token of a hex image.
 #[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]

@@ -139,8 +139,7 @@ pub fn prepare(spec: &JobSpec, job_dir: &Path) -> Result<Prepared> {
             .collect(),
         _ => spec.input.columns.iter().map(|c| (c.name.clone(), c.ty)).collect(),
     };
-    let pred = predicate::parse(&scan_spec.predicate)
-        .and_then(|e| predicate::bind(&e, &schema))
+    let pred = predicate::compile(&scan_spec.predicate, &schema)
         .map_err(|e| Error::input(format!("kernel.predicate: {e}\n{}", e.caret())))?;
     let source = build_source(&mut spec, &schema, &pred, job_dir)?;
     let schema = source.schema();

@@ -193,7 +193,10 @@ fn convert(lit: &Spanned<Literal>, col: Col<'_>) -> Result<Scalar, PredicateErro
                 (text.parse::<f64>(), format!("{:e}", f64::MAX))
             };
             let Ok(value) = value else {
-                return fail(ErrorKind::Syntax, format!("malformed float literal `{text}`"));
+                return fail(
+                    ErrorKind::Syntax,
+                    format!("malformed float literal `{text}`"),
+                );
             };
             let written_inf = text
                 .trim_start_matches(['+', '-'])
@@ -231,7 +234,7 @@ mod tests {
 
     // Ranges of u8..u64 and i8..i64 per the Rust Reference, "Integer types"
     // (0..=2^n-1 unsigned, -2^(n-1)..=2^(n-1)-1 signed); u1/u2/u4 as n-bit unsigned
-    // values 0..=2^n-1 (common practice).
+    // values 0..=2^n-1 (common practice). Section name recalled from memory.
     const RANGES: [(ElemType, i128, i128); 11] = [
         (ElemType::U1, 0, 1),
         (ElemType::U2, 0, 3),
@@ -243,12 +246,19 @@ mod tests {
         (ElemType::I8, -128, 127),
         (ElemType::I16, -32_768, 32_767),
         (ElemType::I32, -2_147_483_648, 2_147_483_647),
-        (ElemType::I64, -9_223_372_036_854_775_808, 9_223_372_036_854_775_807),
+        (
+            ElemType::I64,
+            -9_223_372_036_854_775_808,
+            9_223_372_036_854_775_807,
+        ),
     ];
 
     #[test]
     fn integer_literals_must_fit_the_column_type() {
-        let integer_types: Vec<ElemType> = ElemType::ALL.into_iter().filter(|t| !t.is_float()).collect();
+        let integer_types: Vec<ElemType> = ElemType::ALL
+            .into_iter()
+            .filter(|t| !t.is_float())
+            .collect();
         assert_eq!(RANGES.map(|r| r.0).to_vec(), integer_types);
         for (ty, min, max) in RANGES {
             let expect = |v: i128| {
@@ -267,17 +277,27 @@ mod tests {
                     e.message(),
                     format!("literal {bad} is out of range for {ty} column `x` ({min}..={max})")
                 );
-                assert_eq!(e.span(), Span { pos: 4, len: bad.to_string().len() });
+                assert_eq!(
+                    e.span(),
+                    Span {
+                        pos: 4,
+                        len: bad.to_string().len()
+                    }
+                );
             }
         }
         let e = scalar("x = 0x100", ElemType::U8).unwrap_err();
-        assert_eq!(e.message(), "literal 256 is out of range for u8 column `x` (0..=255)");
+        assert_eq!(
+            e.message(),
+            "literal 256 is out of range for u8 column `x` (0..=255)"
+        );
     }
 
     // IEEE 754-2008 §4.3.1: under roundTiesToEven a value of magnitude at least
     // 2^emax × (2 − 2^−p) rounds to infinity; for binary32 (emax 127, p 24, §3.6) that is
     // 2^128 − 2^103 = 340282356779733661637539395458142568448, and the largest finite
-    // value is (2 − 2^−23) × 2^127, printed by Rust as 3.4028235e38.
+    // value is (2 − 2^−23) × 2^127, printed by Rust as 3.4028235e38. Clause numbers
+    // here and below are recalled from memory.
     #[test]
     fn float_literals_that_round_to_infinity_are_out_of_range() {
         let e = scalar("x < 1e39", ElemType::F32).unwrap_err();
@@ -286,13 +306,30 @@ mod tests {
             e.message(),
             "literal 1e39 overflows f32 column `x` (largest finite magnitude 3.4028235e38)"
         );
-        assert_eq!(scalar("x < -1e39", ElemType::F32).unwrap_err().kind(), ErrorKind::OutOfRange);
-        assert_eq!(scalar("x < 1e39", ElemType::F64), Ok(Scalar::F(1e39)));
-        assert_eq!(scalar("x < 1e309", ElemType::F64).unwrap_err().kind(), ErrorKind::OutOfRange);
-        let max = f64::from(f32::MAX);
-        assert_eq!(scalar("x < 340282356779733661637539395458142568447.9", ElemType::F32), Ok(Scalar::F(max)));
         assert_eq!(
-            scalar("x < 340282356779733661637539395458142568448.0", ElemType::F32).unwrap_err().kind(),
+            scalar("x < -1e39", ElemType::F32).unwrap_err().kind(),
+            ErrorKind::OutOfRange
+        );
+        assert_eq!(scalar("x < 1e39", ElemType::F64), Ok(Scalar::F(1e39)));
+        assert_eq!(
+            scalar("x < 1e309", ElemType::F64).unwrap_err().kind(),
+            ErrorKind::OutOfRange
+        );
+        let max = f64::from(f32::MAX);
+        assert_eq!(
+            scalar(
+                "x < 340282356779733661637539395458142568447.9",
+                ElemType::F32
+            ),
+            Ok(Scalar::F(max))
+        );
+        assert_eq!(
+            scalar(
+                "x < 340282356779733661637539395458142568448.0",
+                ElemType::F32
+            )
+            .unwrap_err()
+            .kind(),
             ErrorKind::OutOfRange
         );
         // Tiny literals underflow quietly.
@@ -302,8 +339,14 @@ mod tests {
     #[test]
     fn nan_and_infinities_bind_to_float_columns() {
         assert!(matches!(scalar("x = NaN", ElemType::F32), Ok(Scalar::F(v)) if v.is_nan()));
-        assert_eq!(scalar("x < inf", ElemType::F32), Ok(Scalar::F(f64::INFINITY)));
-        assert_eq!(scalar("x > -Inf", ElemType::F64), Ok(Scalar::F(f64::NEG_INFINITY)));
+        assert_eq!(
+            scalar("x < inf", ElemType::F32),
+            Ok(Scalar::F(f64::INFINITY))
+        );
+        assert_eq!(
+            scalar("x > -Inf", ElemType::F64),
+            Ok(Scalar::F(f64::NEG_INFINITY))
+        );
     }
 
     // binary32 has a 24-bit significand (IEEE 754-2008 §3.6), so 1 + 2^-24 is the
@@ -314,9 +357,12 @@ mod tests {
     fn f32_columns_round_the_literal_text_once() {
         assert_eq!(
             scalar("x = 1.00000005960464477539062500001", ElemType::F32),
-            Ok(Scalar::F(1.00000011920928955078125))
+            Ok(Scalar::F(1.0 + 2f64.powi(-23)))
         );
-        assert_eq!(scalar("x = 1.000000059604644775390625", ElemType::F32), Ok(Scalar::F(1.0)));
+        assert_eq!(
+            scalar("x = 1.000000059604644775390625", ElemType::F32),
+            Ok(Scalar::F(1.0))
+        );
         assert_eq!(scalar("x = 0.1", ElemType::F64), Ok(Scalar::F(0.1)));
     }
 
@@ -324,25 +370,66 @@ mod tests {
     // sends the midpoints 2^24 + 1 down and 2^24 + 3 up.
     #[test]
     fn integer_literals_on_float_columns_round_to_nearest_even() {
-        assert_eq!(scalar("x = 16777217", ElemType::F32), Ok(Scalar::F(16_777_216.0)));
-        assert_eq!(scalar("x = 16777219", ElemType::F32), Ok(Scalar::F(16_777_220.0)));
-        assert_eq!(scalar("x = 16777217", ElemType::F64), Ok(Scalar::F(16_777_217.0)));
+        assert_eq!(
+            scalar("x = 16777217", ElemType::F32),
+            Ok(Scalar::F(16_777_216.0))
+        );
+        assert_eq!(
+            scalar("x = 16777219", ElemType::F32),
+            Ok(Scalar::F(16_777_220.0))
+        );
+        assert_eq!(
+            scalar("x = 16777217", ElemType::F64),
+            Ok(Scalar::F(16_777_217.0))
+        );
         assert_eq!(scalar("x = -3", ElemType::F64), Ok(Scalar::F(-3.0)));
     }
 
     #[test]
     fn wrong_literal_kinds_are_type_mismatches() {
         for (text, ty, message) in [
-            ("x = 'abc'", ElemType::U8, "string literal on u8 column `x`: predicates compare numbers only"),
-            ("x = 'abc'", ElemType::F64, "string literal on f64 column `x`: predicates compare numbers only"),
-            ("x = 1.5", ElemType::I32, "float literal 1.5 on integer column `x` (i32)"),
-            ("x = 2e0", ElemType::U64, "float literal 2e0 on integer column `x` (u64)"),
-            ("x = nan", ElemType::I8, "float literal nan on integer column `x` (i8)"),
-            ("x between 1 and 2.0", ElemType::U16, "float literal 2.0 on integer column `x` (u16)"),
-            ("x in (1, 2, 'z')", ElemType::U4, "string literal on u4 column `x`: predicates compare numbers only"),
+            (
+                "x = 'abc'",
+                ElemType::U8,
+                "string literal on u8 column `x`: predicates compare numbers only",
+            ),
+            (
+                "x = 'abc'",
+                ElemType::F64,
+                "string literal on f64 column `x`: predicates compare numbers only",
+            ),
+            (
+                "x = 1.5",
+                ElemType::I32,
+                "float literal 1.5 on integer column `x` (i32)",
+            ),
+            (
+                "x = 2e0",
+                ElemType::U64,
+                "float literal 2e0 on integer column `x` (u64)",
+            ),
+            (
+                "x = nan",
+                ElemType::I8,
+                "float literal nan on integer column `x` (i8)",
+            ),
+            (
+                "x between 1 and 2.0",
+                ElemType::U16,
+                "float literal 2.0 on integer column `x` (u16)",
+            ),
+            (
+                "x in (1, 2, 'z')",
+                ElemType::U4,
+                "string literal on u4 column `x`: predicates compare numbers only",
+            ),
         ] {
             let e = compile(text, &one(ty)).unwrap_err();
-            assert_eq!((e.kind(), e.message()), (ErrorKind::TypeMismatch, message), "{text}");
+            assert_eq!(
+                (e.kind(), e.message()),
+                (ErrorKind::TypeMismatch, message),
+                "{text}"
+            );
         }
     }
 
@@ -361,25 +448,41 @@ mod tests {
             ("b".to_string(), ElemType::I16),
             ("c".to_string(), ElemType::F32),
         ];
-        let b = compile("c between 0.5 and -1 or not a not in (1, 2) and b = -7", &schema).unwrap();
+        let b = compile(
+            "c between 0.5 and -1 or not a not in (1, 2) and b = -7",
+            &schema,
+        )
+        .unwrap();
         let expect = Bound::Or(
-            Box::new(Bound::Leaf { col: 2, test: Test::Between(Scalar::F(0.5), Scalar::F(-1.0)) }),
+            Box::new(Bound::Leaf {
+                col: 2,
+                test: Test::Between(Scalar::F(0.5), Scalar::F(-1.0)),
+            }),
             Box::new(Bound::And(
                 Box::new(Bound::Not(Box::new(Bound::Not(Box::new(Bound::Leaf {
                     col: 0,
                     test: Test::In(vec![Scalar::U(1), Scalar::U(2)]),
                 }))))),
-                Box::new(Bound::Leaf { col: 1, test: Test::Cmp(CmpOp::Eq, Scalar::I(-7)) }),
+                Box::new(Bound::Leaf {
+                    col: 1,
+                    test: Test::Cmp(CmpOp::Eq, Scalar::I(-7)),
+                }),
             )),
         );
         assert_eq!(b, expect);
         assert_eq!(b.columns(), vec![0, 1, 2]);
-        assert_eq!(compile("c < 1 or c > 2", &schema).unwrap().columns(), vec![2]);
+        assert_eq!(
+            compile("c < 1 or c > 2", &schema).unwrap().columns(),
+            vec![2]
+        );
     }
 
     #[test]
     fn bind_alone_reports_spans_without_text() {
         let e = bind(&parse("x < 1 or y < 2").unwrap(), &one(ElemType::U8)).unwrap_err();
-        assert_eq!((e.kind(), e.span(), e.text()), (ErrorKind::UnknownColumn, Span { pos: 9, len: 1 }, ""));
+        assert_eq!(
+            (e.kind(), e.span(), e.text()),
+            (ErrorKind::UnknownColumn, Span { pos: 9, len: 1 }, "")
+        );
     }
 }

@@ -33,7 +33,9 @@ impl Bound {
 fn matches(test: &Test, v: Value) -> bool {
     match test {
         Test::Cmp(op, s) => holds(*op, compare(v, *s)),
-        Test::Between(lo, hi) => holds(CmpOp::Ge, compare(v, *lo)) && holds(CmpOp::Le, compare(v, *hi)),
+        Test::Between(lo, hi) => {
+            holds(CmpOp::Ge, compare(v, *lo)) && holds(CmpOp::Le, compare(v, *hi))
+        }
         Test::In(list) => list.iter().any(|s| holds(CmpOp::Eq, compare(v, *s))),
     }
 }
@@ -123,6 +125,7 @@ mod tests {
 
     // IEEE 754-2008 §5.11: every comparison with a NaN operand is "unordered", so the
     // predicates <, <=, =, >=, > are false and != (the negation of =) is true.
+    // (Clause number recalled from memory.)
     #[test]
     fn nan_is_unordered() {
         let nan = Value::F(f64::NAN);
@@ -171,7 +174,11 @@ mod tests {
     fn infinities_order_at_the_ends() {
         assert!(eval1("x > 1e308", ElemType::F64, Value::F(f64::INFINITY)));
         assert!(eval1("x = inf", ElemType::F64, Value::F(f64::INFINITY)));
-        assert!(eval1("x < -1e308", ElemType::F64, Value::F(f64::NEG_INFINITY)));
+        assert!(eval1(
+            "x < -1e308",
+            ElemType::F64,
+            Value::F(f64::NEG_INFINITY)
+        ));
     }
 
     #[test]
@@ -186,7 +193,10 @@ mod tests {
 
     #[test]
     fn logic_follows_the_tree() {
-        let schema = [("a".to_string(), ElemType::I32), ("b".to_string(), ElemType::I32)];
+        let schema = [
+            ("a".to_string(), ElemType::I32),
+            ("b".to_string(), ElemType::I32),
+        ];
         let b = compile("a < 0 or not b = 1 and a > 10", &schema).unwrap();
         let row = |a: i64, bv: i64| move |i: usize| Value::I(if i == 0 { a } else { bv });
         assert!(b.eval(&row(-1, 1)));
@@ -199,13 +209,25 @@ mod tests {
     fn mixed_kinds_compare_exactly() {
         // 2^53 + 1 is not an f64; a float-rounding comparison would call it equal to 2^53.
         let two53 = 9_007_199_254_740_992.0;
-        assert_eq!(compare(Value::U((1 << 53) + 1), Scalar::F(two53)), Some(Ordering::Greater));
+        assert_eq!(
+            compare(Value::U((1 << 53) + 1), Scalar::F(two53)),
+            Some(Ordering::Greater)
+        );
         assert_eq!(compare(Value::F(-2.5), Scalar::I(-2)), Some(Ordering::Less));
-        assert_eq!(compare(Value::F(-1.5), Scalar::I(-2)), Some(Ordering::Greater));
+        assert_eq!(
+            compare(Value::F(-1.5), Scalar::I(-2)),
+            Some(Ordering::Greater)
+        );
         assert_eq!(compare(Value::F(7.0), Scalar::U(7)), Some(Ordering::Equal));
         assert_eq!(compare(Value::F(f64::NAN), Scalar::U(7)), None);
-        assert_eq!(compare(Value::F(1e300), Scalar::U(u64::MAX)), Some(Ordering::Greater));
-        assert_eq!(compare(Value::F(-1e300), Scalar::I(i64::MIN)), Some(Ordering::Less));
+        assert_eq!(
+            compare(Value::F(1e300), Scalar::U(u64::MAX)),
+            Some(Ordering::Greater)
+        );
+        assert_eq!(
+            compare(Value::F(-1e300), Scalar::I(i64::MIN)),
+            Some(Ordering::Less)
+        );
         assert_eq!(compare(Value::I(-1), Scalar::U(0)), Some(Ordering::Less));
     }
 }

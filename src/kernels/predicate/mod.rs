@@ -64,6 +64,7 @@
 mod ast;
 mod bind;
 mod eval;
+mod lex;
 mod parse;
 mod ranges;
 mod sql;
@@ -114,7 +115,7 @@ pub struct PredicateError {
 }
 
 impl PredicateError {
-    pub(super) fn new(kind: ErrorKind, span: Span, text: &str, message: String) -> Self {
+    fn new(kind: ErrorKind, span: Span, text: &str, message: String) -> Self {
         PredicateError {
             kind,
             span,

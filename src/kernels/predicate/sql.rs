@@ -32,7 +32,11 @@ impl Bound {
                 leaf_sql(&name, test, out);
             }
             Bound::And(a, b) | Bound::Or(a, b) => {
-                let word = if matches!(self, Bound::And(..)) { "AND" } else { "OR" };
+                let word = if matches!(self, Bound::And(..)) {
+                    "AND"
+                } else {
+                    "OR"
+                };
                 out.push('(');
                 a.write_sql(schema, out);
                 let _ = write!(out, " {word} ");
@@ -120,7 +124,10 @@ mod tests {
         // 0.1 as f32 is 13421773 * 2^-27 = 0.100000001490116119384765625 exactly.
         assert_eq!(sql("temp < 0.1"), "(\"temp\" < 1.0000000149011612e-1)");
         assert_eq!(sql("yaw = 0.1"), "(\"yaw\" = 1e-1)");
-        assert_eq!(sql("yaw > -inf and yaw < inf"), "((\"yaw\" > -9e999) AND (\"yaw\" < 9e999))");
+        assert_eq!(
+            sql("yaw > -inf and yaw < inf"),
+            "((\"yaw\" > -9e999) AND (\"yaw\" < 9e999))"
+        );
     }
 
     #[test]

@@ -1,0 +1,202 @@
+//! Every command-line flag, defined once.
+
+use std::path::PathBuf;
+
+use clap::{Args, Parser, Subcommand};
+
+/// Golden memory images, byte ledgers and a fast CPU baseline for accelerator kernels.
+#[derive(Debug, Parser)]
+#[command(name = "weir", version, about, propagate_version = true)]
+pub struct Cli {
+    /// The command.
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+/// The commands.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Run a job: write input images, golden outputs, ledger, memory map and manifest.
+    Run(RunArgs),
+    /// Print a run's manifest as a table and verify every file's checksum.
+    Inspect(InspectArgs),
+    /// Compare device or simulator dumps with a run's golden outputs.
+    Check(CheckArgs),
+    /// Generate a table for a kernel and write it as CSV, .npy or .bin.
+    Gen(GenArgs),
+    /// Measure the host's streaming read, write and copy bandwidth.
+    Calibrate(CalibrateArgs),
+    /// Benchmark a kernel on the host against the calibrated bandwidth.
+    Bench(BenchArgs),
+    /// Run the built-in wind-farm demo end to end.
+    Demo(DemoArgs),
+}
+
+/// `weir run`.
+#[derive(Debug, Args)]
+pub struct RunArgs {
+    /// The job file (TOML).
+    pub job: PathBuf,
+    /// Output directory (created; must not exist or be empty unless --force).
+    #[arg(long)]
+    pub out: PathBuf,
+    /// Worker threads (default: all cores). Results do not depend on it.
+    #[arg(long)]
+    pub threads: Option<usize>,
+    /// Replace an existing output directory.
+    #[arg(long)]
+    pub force: bool,
+    /// Run once per seed A, A+1, …, B-1 into DIR/seed-N/ (constrained-random regression).
+    #[arg(long, value_name = "A..B")]
+    pub seeds: Option<String>,
+}
+
+/// `weir inspect`.
+#[derive(Debug, Args)]
+pub struct InspectArgs {
+    /// A run's output directory.
+    pub dir: PathBuf,
+}
+
+/// `weir check`.
+#[derive(Debug, Args)]
+pub struct CheckArgs {
+    /// A run's output directory (holding manifest.json and golden/).
+    pub golden: PathBuf,
+    /// A directory of dumps named like the golden files (scan.p0.out.hex, …), or one dump.
+    pub device: PathBuf,
+    /// Compare record outputs as multisets (for engines that emit in another order).
+    #[arg(long)]
+    pub unordered: bool,
+    /// Print the report as JSON.
+    #[arg(long)]
+    pub json: bool,
+}
+
+/// `weir gen`.
+#[derive(Debug, Args)]
+pub struct GenArgs {
+    /// Which kernel's data.
+    #[command(subcommand)]
+    pub kind: GenKind,
+}
+
+/// Generators.
+#[derive(Debug, Subcommand)]
+pub enum GenKind {
+    /// One value column with a requested selectivity for `lo <= v < hi`.
+    Scan(GenScanArgs),
+}
+
+/// `weir gen scan`.
+#[derive(Debug, Args)]
+pub struct GenScanArgs {
+    /// Rows.
+    #[arg(long, default_value_t = 1 << 20)]
+    pub rows: u64,
+    /// Element type of the value column.
+    #[arg(long = "type", default_value = "u32")]
+    pub ty: String,
+    /// Requested fraction of rows with lo <= v < hi.
+    #[arg(long, default_value_t = 0.01)]
+    pub selectivity: f64,
+    /// Start of the match range (inclusive).
+    #[arg(long, default_value_t = 1000.0)]
+    pub lo: f64,
+    /// End of the match range (exclusive).
+    #[arg(long, default_value_t = 2000.0)]
+    pub hi: f64,
+    /// Value skew: uniform or zipf.
+    #[arg(long, default_value = "uniform")]
+    pub skew: String,
+    /// Zipf exponent.
+    #[arg(long, default_value_t = 0.99)]
+    pub theta: f64,
+    /// Plant corner rows (bounds, type limits, NaN, ±0, ±∞).
+    #[arg(long)]
+    pub corners: bool,
+    /// Seed.
+    #[arg(long, default_value_t = 1)]
+    pub seed: u64,
+    /// Output file: .csv, .npy or .bin.
+    #[arg(long)]
+    pub out: PathBuf,
+    /// Replace an existing file.
+    #[arg(long)]
+    pub force: bool,
+}
+
+/// `weir calibrate`.
+#[derive(Debug, Args)]
+pub struct CalibrateArgs {
+    /// Measure with 1..=N threads (default: all cores).
+    #[arg(long)]
+    pub threads: Option<usize>,
+    /// Buffer size in bytes (accepts suffixes K, M, G; default 1G).
+    #[arg(long, default_value = "1G")]
+    pub bytes: String,
+    /// Repetitions per measure (the best is kept).
+    #[arg(long, default_value_t = 5)]
+    pub runs: usize,
+    /// Save the calibration as JSON (read by `weir bench --calibration`).
+    #[arg(long)]
+    pub out: Option<PathBuf>,
+    /// Replace an existing --out file.
+    #[arg(long)]
+    pub force: bool,
+}
+
+/// `weir bench`.
+#[derive(Debug, Args)]
+pub struct BenchArgs {
+    /// Which kernel.
+    #[command(subcommand)]
+    pub kind: BenchKind,
+}
+
+/// Benchmarks.
+#[derive(Debug, Subcommand)]
+pub enum BenchKind {
+    /// Predicate scan of one u32 column, row-id output.
+    Scan(BenchScanArgs),
+}
+
+/// `weir bench scan`.
+#[derive(Debug, Args)]
+pub struct BenchScanArgs {
+    /// Thread counts to measure, comma-separated (default: 1 and all cores).
+    #[arg(long, value_delimiter = ',')]
+    pub threads: Option<Vec<usize>>,
+    /// Rows of the u32 column (default 2^28 = 1 GiB).
+    #[arg(long, default_value_t = 1 << 28)]
+    pub rows: u64,
+    /// Selectivities to measure, comma-separated.
+    #[arg(long, value_delimiter = ',', default_value = "0.01")]
+    pub selectivity: Vec<f64>,
+    /// Timed runs per point, after one warm-up.
+    #[arg(long, default_value_t = 7)]
+    pub runs: usize,
+    /// A calibration saved by `weir calibrate --out` (default: a short calibration now).
+    #[arg(long)]
+    pub calibration: Option<PathBuf>,
+    /// Write results to PREFIX.csv and PREFIX.json.
+    #[arg(long, value_name = "PREFIX")]
+    pub out: Option<PathBuf>,
+    /// Also save the generated column as .npy (for benches/compare/scan.py).
+    #[arg(long)]
+    pub save_npy: Option<PathBuf>,
+    /// Replace existing output files.
+    #[arg(long)]
+    pub force: bool,
+}
+
+/// `weir demo`.
+#[derive(Debug, Args)]
+pub struct DemoArgs {
+    /// Output directory.
+    #[arg(long, default_value = "weir-demo")]
+    pub out: PathBuf,
+    /// Replace an existing output directory.
+    #[arg(long)]
+    pub force: bool,
+}

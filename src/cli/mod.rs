@@ -1,0 +1,81 @@
+//! The command line: parses flags, calls the library, prints tables and sets the exit code
+//! (0 ok, 1 mismatch, 2 bad input or usage). Nothing below this module prints or exits.
+
+pub mod args;
+mod bench;
+mod check;
+mod gen;
+mod run;
+
+use std::process::ExitCode;
+
+use clap::Parser;
+use indicatif::{ProgressBar, ProgressStyle};
+
+use args::{Cli, Command};
+
+/// What a command reports back to `main`.
+pub enum Outcome {
+    /// Success.
+    Ok,
+    /// The command ran and found a difference (check, inspect).
+    Mismatch,
+}
+
+/// Parses arguments, runs the command and maps the result to an exit code.
+pub fn main() -> ExitCode {
+    let cli = match Cli::try_parse() {
+        Ok(c) => c,
+        Err(e) => {
+            let code = if e.use_stderr() { 2 } else { 0 };
+            let _ = e.print();
+            return ExitCode::from(code);
+        }
+    };
+    match dispatch(cli.command) {
+        Ok(Outcome::Ok) => ExitCode::SUCCESS,
+        Ok(Outcome::Mismatch) => ExitCode::from(1),
+        Err(e) => {
+            eprintln!("weir: error: {e}");
+            ExitCode::from(2)
+        }
+    }
+}
+
+fn dispatch(cmd: Command) -> weir::Result<Outcome> {
+    match cmd {
+        Command::Run(a) => run::run(a),
+        Command::Demo(a) => run::demo(a),
+        Command::Inspect(a) => check::inspect(a),
+        Command::Check(a) => check::check(a),
+        Command::Gen(a) => gen::gen(a),
+        Command::Calibrate(a) => bench::calibrate(a),
+        Command::Bench(a) => bench::bench(a),
+    }
+}
+
+/// Sets the worker thread count for the whole process.
+pub fn set_threads(threads: Option<usize>) -> weir::Result<()> {
+    if let Some(n) = threads {
+        if n == 0 {
+            return Err(weir::Error::input("--threads must be at least 1"));
+        }
+        rayon::ThreadPoolBuilder::new()
+            .num_threads(n)
+            .build_global()
+            .map_err(|e| weir::Error::input(format!("--threads {n}: {e}")))?;
+    }
+    Ok(())
+}
+
+/// A progress bar on stderr (drawn only on a terminal).
+pub fn progress(total: u64, what: &str) -> ProgressBar {
+    let pb = ProgressBar::new(total);
+    pb.set_style(
+        ProgressStyle::with_template("{msg:>12} [{bar:30}] {pos}/{len} {elapsed_precise}")
+            .expect("valid template")
+            .progress_chars("=> "),
+    );
+    pb.set_message(what.to_string());
+    pb
+}

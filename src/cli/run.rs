@@ -1,0 +1,85 @@
+//! `weir run` and `weir demo`.
+
+use std::path::Path;
+
+use weir::job::{self, JobSpec, RunSummary};
+use weir::report::{human_bytes, ledger_report, TextTable};
+use weir::{Error, Result};
+
+use super::args::{DemoArgs, RunArgs};
+use super::Outcome;
+
+/// The demo's job, built in so the demo runs from any directory.
+pub const DEMO_JOB: &str = include_str!("../../data/jobs/demo.toml");
+
+fn parse_seeds(s: &str) -> Result<std::ops::Range<u64>> {
+    let bad = || Error::input(format!("--seeds `{s}`: expected A..B, for example 1..9"));
+    let (a, b) = s.split_once("..").ok_or_else(bad)?;
+    Ok(a.trim().parse().map_err(|_| bad())?..b.trim().parse().map_err(|_| bad())?)
+}
+
+fn execute(spec: &JobSpec, job_dir: &Path, out: &Path, force: bool, seeds: Option<std::ops::Range<u64>>) -> Result<()> {
+    let pb = super::progress(0, "partitions");
+    let results = job::run(spec, job_dir, out, force, seeds, &mut |done, total| {
+        pb.set_length(total as u64);
+        pb.set_position(done as u64);
+    })?;
+    pb.finish_and_clear();
+    for (seed, s) in &results {
+        let dir = match seed {
+            Some(n) => out.join(format!("seed-{n}")),
+            None => out.to_path_buf(),
+        };
+        print_summary(&dir, s);
+    }
+    Ok(())
+}
+
+/// Prints the short summary of one run.
+fn print_summary(dir: &Path, s: &RunSummary) {
+    println!("wrote {} files to {}", s.files, dir.display());
+    let achieved = if s.rows > 0 { s.matches as f64 / s.rows as f64 } else { 0.0 };
+    match s.requested_selectivity {
+        Some(r) => println!("selectivity: requested {:.4}%, achieved {:.4}% ({} of {} rows)", r * 100.0, achieved * 100.0, s.matches, s.rows),
+        None => println!("selectivity: {:.4}% ({} of {} rows)", achieved * 100.0, s.matches, s.rows),
+    }
+    let mut t = TextTable::new(&["engine", "channel", "rows", "matches"]);
+    for p in &s.parts {
+        t.row(vec![p.partition.to_string(), p.channel.to_string(), p.rows.to_string(), p.matches.to_string()]);
+    }
+    println!("\n{}", t.render());
+    println!("{}", ledger_report(&s.ledger));
+    let gbps = if s.kernel_s > 0.0 { s.input_bytes as f64 / s.kernel_s / 1e9 } else { 0.0 };
+    println!(
+        "host: kernel {:.3} s over {} ({gbps:.2} GB/s, {}, {} threads); generate {:.3} s; write {:.3} s",
+        s.kernel_s,
+        human_bytes(s.input_bytes),
+        s.isa,
+        rayon::current_num_threads(),
+        s.gen_s,
+        s.write_s
+    );
+}
+
+/// `weir run`.
+pub fn run(a: RunArgs) -> Result<Outcome> {
+    super::set_threads(a.threads)?;
+    let spec = JobSpec::load(&a.job)?;
+    let seeds = a.seeds.as_deref().map(parse_seeds).transpose()?;
+    let job_dir = a.job.parent().unwrap_or(Path::new("."));
+    execute(&spec, job_dir, &a.out, a.force, seeds)?;
+    Ok(Outcome::Ok)
+}
+
+/// `weir demo`.
+pub fn demo(a: DemoArgs) -> Result<Outcome> {
+    let spec = JobSpec::from_toml(DEMO_JOB, Path::new("data/jobs/demo.toml"))?;
+    println!("weir demo: wind-farm telemetry, predicate `{}`", demo_predicate(&spec));
+    execute(&spec, Path::new("."), &a.out, a.force, None)?;
+    Ok(Outcome::Ok)
+}
+
+fn demo_predicate(spec: &JobSpec) -> &str {
+    let job::spec::KernelSpec::Scan(s) = &spec.kernel;
+    &s.predicate
+}
