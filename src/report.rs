@@ -34,11 +34,15 @@ impl TextTable {
             }
         }
         let numeric = |s: &str| s.chars().next().is_some_and(|c| c.is_ascii_digit() || c == '-');
+        // A column whose first data cell is a number is right-aligned, header included.
+        let right: Vec<bool> = (0..n)
+            .map(|i| self.rows.first().and_then(|r| r.get(i)).is_some_and(|c| numeric(c)))
+            .collect();
         let line = |r: &[String]| {
             let cells: Vec<String> = r
                 .iter()
                 .enumerate()
-                .map(|(i, c)| if numeric(c) { format!("{c:>w$}", w = width[i]) } else { format!("{c:<w$}", w = width[i]) })
+                .map(|(i, c)| if right[i] { format!("{c:>w$}", w = width[i]) } else { format!("{c:<w$}", w = width[i]) })
                 .collect();
             cells.join("  ").trim_end().to_string() + "\n"
         };
@@ -131,7 +135,7 @@ mod tests {
         assert_eq!(
             first,
             vec![
-                "engine    read      read words  rows in  written  write words  rows out",
+                "engine        read  read words  rows in  written  write words  rows out",
                 "--------  --------  ----------  -------  -------  -----------  --------",
                 "engine 0  4.00 KiB          64     1024     60 B            2        13",
                 "engine 1  3.91 KiB          63     1000      0 B            0         0",

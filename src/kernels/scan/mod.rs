@@ -153,10 +153,11 @@ pub fn scan_partition(
                 cur.touch(len * rec, len);
                 read += cur.traffic;
             } else {
-                for &ci in &cols {
+                // Rows are logical: counted once per row, on the first column streamed.
+                for (k, &ci) in cols.iter().enumerate() {
                     let ty = table.columns[ci].ty;
                     let mut cur = Cursor::new(io.column_bases[ci] + byte_len(ty, start), io.word_bytes);
-                    cur.touch(byte_len(ty, len), len);
+                    cur.touch(byte_len(ty, len), if k == 0 { len } else { 0 });
                     read += cur.traffic;
                 }
             }
