@@ -263,9 +263,13 @@ set -e
 echo "$report"
 [ "$rc" -ne 0 ] || die "weir check reported a match for the off-by-one variant"
 [ "$rc" -eq 1 ] || die "weir check failed on the off-by-one variant's dump (exit $rc, expected 1 = mismatch)"
-# The report must name the partition and the first differing record on one line.
-grep -E "(p|partition )$bad_part\b" <<<"$report" | grep -qE "\b$bad_record\b" ||
-    die "weir check's report does not name partition $bad_part with first differing record $bad_record"
+# The report must flag partition $bad_part's output and list record $bad_record first.
+named="$(awk -v stem="scan.p$bad_part.out" '
+    index($0, stem) && /differ/ { flagged = 1; next }
+    flagged && match($0, /record [0-9]+/) { print substr($0, RSTART + 7, RLENGTH - 7); exit }' <<<"$report")"
+[ -n "$named" ] || die "weir check's report does not flag scan.p$bad_part.out with a differing record"
+[ "$named" = "$bad_record" ] ||
+    die "weir check's report names record $named as the first difference of scan.p$bad_part.out, expected $bad_record"
 echo "off-by-one variant: mismatch as expected (partition $bad_part, record $bad_record)"
 
 # ---------------------------------------------------------------- summary

@@ -131,18 +131,23 @@ pub fn prepare(spec: &JobSpec, job_dir: &Path) -> Result<Prepared> {
         }
     };
 
-    // Schema first: the predicate binds against it, and generator bounds may come from it.
-    let schema: Vec<(String, ElemType)> = match spec.input.generator.as_deref() {
-        Some("telemetry") => crate::gen::telemetry::SCHEMA
+    // Files are read first (their schema is the table's); generator bounds may come from
+    // the predicate, so generators are built after binding it.
+    let loaded = load_files(&spec, job_dir)?;
+    let schema: Vec<(String, ElemType)> = match (&loaded, spec.input.generator.as_deref()) {
+        (Some(t), _) => t.schema(),
+        (None, Some("telemetry")) => crate::gen::telemetry::SCHEMA
             .iter()
             .map(|(n, t)| (n.to_string(), *t))
             .collect(),
-        _ => spec.input.columns.iter().map(|c| (c.name.clone(), c.ty)).collect(),
+        (None, _) => spec.input.columns.iter().map(|c| (c.name.clone(), c.ty)).collect(),
     };
     let pred = predicate::compile(&scan_spec.predicate, &schema)
         .map_err(|e| Error::input(format!("kernel.predicate: {e}\n{}", e.caret())))?;
-    let source = build_source(&mut spec, &schema, &pred, job_dir)?;
-    let schema = source.schema();
+    let source = match loaded {
+        Some(t) => Source::Loaded(t),
+        None => Source::Gen(build_gen(&mut spec, &schema, &pred)?),
+    };
     for (name, ty) in &schema {
         if !is_identifier(name) {
             return Err(Error::input(format!(
@@ -303,67 +308,63 @@ fn scan_params(
     })
 }
 
-fn build_source(
-    spec: &mut JobSpec,
-    schema: &[(String, ElemType)],
-    pred: &Bound,
-    job_dir: &Path,
-) -> Result<Source> {
-    let input = &mut spec.input;
-    let table = input.table.clone();
-    if input.generator.as_deref() == Some("telemetry") {
-        let rows = input
-            .rows
-            .ok_or_else(|| Error::input("input.rows: the telemetry generator needs a row count"))?;
-        let turbines = *input.turbines.get_or_insert(64);
-        return Ok(Source::Gen(TableGen {
-            table,
-            rows,
-            seed: input.seed,
-            shape: Shape::Telemetry { turbines },
-        }));
-    }
-    if let Some(g) = input.generator.as_deref().filter(|g| *g != "columns") {
-        return Err(Error::input(format!(
-            "input.generator: unknown generator `{g}` (expected columns or telemetry)"
-        )));
-    }
+/// The table read from the job's CSV or column files, if it names any.
+fn load_files(spec: &JobSpec, job_dir: &Path) -> Result<Option<Table>> {
+    let input = &spec.input;
     if let Some(csv) = &input.csv {
         let path = job_dir.join(csv);
-        let given: Option<Vec<(String, ElemType)>> = (!input.columns.is_empty()).then(|| schema.to_vec());
-        let t = table::read_csv(&path, &table, given.as_deref())?;
-        return Ok(Source::Loaded(t));
+        let given: Option<Vec<(String, ElemType)>> = (!input.columns.is_empty())
+            .then(|| input.columns.iter().map(|c| (c.name.clone(), c.ty)).collect());
+        return table::read_csv(&path, &input.table, given.as_deref()).map(Some);
+    }
+    let from_files = input.columns.iter().filter(|c| c.file.is_some()).count();
+    if from_files == 0 {
+        return Ok(None);
+    }
+    if from_files != input.columns.len() {
+        return Err(Error::input("input.columns: either every column has a file or none does"));
+    }
+    let mut cols = Vec::new();
+    for c in &input.columns {
+        let path = job_dir.join(c.file.as_ref().expect("checked above"));
+        let col = match path.extension().and_then(|e| e.to_str()) {
+            Some("npy") => table::read_npy_column(&path, &c.name, Some(c.ty))?,
+            Some("bin") => table::read_bin_column(&path, &c.name, c.ty)?,
+            _ => {
+                return Err(Error::input(format!(
+                    "{}: column files must end in .npy or .bin",
+                    path.display()
+                )))
+            }
+        };
+        cols.push(col);
+    }
+    Table::new(&input.table, cols).map(Some).map_err(Error::input)
+}
+
+/// The generator the job describes (telemetry, or one generator per column).
+fn build_gen(spec: &mut JobSpec, schema: &[(String, ElemType)], pred: &Bound) -> Result<TableGen> {
+    let input = &mut spec.input;
+    let table = input.table.clone();
+    let rows = input
+        .rows
+        .ok_or_else(|| Error::input("input.rows: generated tables need a row count"))?;
+    match input.generator.as_deref() {
+        Some("telemetry") => {
+            let turbines = *input.turbines.get_or_insert(64);
+            return Ok(TableGen { table, rows, seed: input.seed, shape: Shape::Telemetry { turbines } });
+        }
+        None | Some("columns") => {}
+        Some(g) => {
+            return Err(Error::input(format!(
+                "input.generator: unknown generator `{g}` (expected columns or telemetry)"
+            )))
+        }
     }
     if input.columns.is_empty() {
         return Err(Error::input("input: give columns (generated or from files) or a csv file"));
     }
     let ranges = pred.ranges(schema);
-    let from_files = input.columns.iter().filter(|c| c.file.is_some()).count();
-    if from_files > 0 {
-        if from_files != input.columns.len() {
-            return Err(Error::input("input.columns: either every column has a file or none does"));
-        }
-        let mut cols = Vec::new();
-        for c in &input.columns {
-            let path = job_dir.join(c.file.as_ref().expect("checked above"));
-            let col = match path.extension().and_then(|e| e.to_str()) {
-                Some("npy") => table::read_npy_column(&path, &c.name, Some(c.ty))?,
-                Some("bin") => table::read_bin_column(&path, &c.name, c.ty)?,
-                _ => {
-                    return Err(Error::input(format!(
-                        "{}: column files must end in .npy or .bin",
-                        path.display()
-                    )))
-                }
-            };
-            cols.push(col);
-        }
-        let t = Table::new(&table, cols).map_err(Error::input)?;
-        return Ok(Source::Loaded(t));
-    }
-    let rows = input
-        .rows
-        .ok_or_else(|| Error::input("input.rows: generated columns need a row count"))?;
     let mut gens = Vec::new();
     for (i, c) in input.columns.iter_mut().enumerate() {
         let range = ranges.as_ref().and_then(|rs| rs.iter().find(|r| r.col == i));
@@ -371,12 +372,7 @@ fn build_source(
         g.validate().map_err(Error::input)?;
         gens.push(g);
     }
-    Ok(Source::Gen(TableGen {
-        table,
-        rows,
-        seed: input.seed,
-        shape: Shape::Columns(gens),
-    }))
+    Ok(TableGen { table, rows, seed: input.seed, shape: Shape::Columns(gens) })
 }
 
 /// Builds a column generator, filling `lo`/`hi` of a `select` column from the predicate's
