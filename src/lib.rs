@@ -4,6 +4,7 @@
 //! The library does the work; the `weir` binary is a thin layer over it. See DEVELOPERS.md
 //! for the rooms of the house and the data path between them.
 
+pub mod bench;
 pub mod check;
 pub mod error;
 pub mod gen;

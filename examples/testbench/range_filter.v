@@ -20,7 +20,7 @@
 // Define WEIR_BUG_OFF_BY_ONE to make the upper bound inclusive (v <= hi): a deliberate bug
 // the example flow uses to show that the golden comparison catches it.
 module weir_range_filter #(
-    parameter integer WORD_BITS = 512,   // a multiple of LANE_BITS, at least 64 (the count word)
+    parameter integer WORD_BITS = 512,   // a multiple of 32, at least 64 (the count word)
     parameter integer ADDR_BITS = 64
 ) (
     input  wire                 clk,
@@ -35,7 +35,7 @@ module weir_range_filter #(
     input  wire [31:0]          row_start,
     input  wire [ADDR_BITS-1:0] out_base,
     input  wire [ADDR_BITS-1:0] count_base,
-    input  wire [31:0]          lo,          // inclusive
+    input  wire [32:0]          lo,          // inclusive; 33 bits like the memory map's bound
     input  wire [32:0]          hi,          // exclusive; 33 bits so that "no upper bound" fits
     // memory read port: data for rd_addr arrives on rd_data the cycle after rd_en
     output reg                  rd_en,
@@ -66,8 +66,8 @@ module weir_range_filter #(
     // job registers, sampled at start
     reg [ADDR_BITS-1:0] in_base_q, count_base_q;
     reg [63:0] in_words_q, rows_q;
-    reg [31:0] row_start_q, lo_q;
-    reg [32:0] hi_q;
+    reg [31:0] row_start_q;
+    reg [32:0] lo_q, hi_q;
 
     reg [63:0] issued;          // read requests sent
     reg        req_valid;       // rd_en is high this cycle
@@ -100,9 +100,9 @@ module weir_range_filter #(
             v = rd_data[j*LANE_BITS +: LANE_BITS];
             lane_row = word_row + {32'd0, j[31:0]};
 `ifdef WEIR_BUG_OFF_BY_ONE
-            hit[j] = data_valid && lane_row < rows_q && v >= lo_q && {1'b0, v} <= hi_q;
+            hit[j] = data_valid && lane_row < rows_q && {1'b0, v} >= lo_q && {1'b0, v} <= hi_q;
 `else
-            hit[j] = data_valid && lane_row < rows_q && v >= lo_q && {1'b0, v} < hi_q;
+            hit[j] = data_valid && lane_row < rows_q && {1'b0, v} >= lo_q && {1'b0, v} < hi_q;
 `endif
             if (hit[j]) begin
                 slot = fill + hits;

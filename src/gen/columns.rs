@@ -10,6 +10,8 @@
 //! neighbours (lo−1, lo, hi−1, hi for integers; lo, hi and the next float below each for
 //! floats), the type's minimum and maximum, and for floats NaN, −0.0, +0.0, +∞ and −∞.
 
+use rayon::prelude::*;
+
 use super::rng::{Stream, Zipf, BLOCK_ROWS};
 use crate::table::{Column, ColumnData, ElemType};
 
@@ -135,8 +137,29 @@ impl ColumnGen {
         v
     }
 
-    /// Rows `rows` (global row numbers) of the column.
+    /// Rows `rows` (global row numbers) of the column, generated in parallel over groups
+    /// of blocks (values depend only on their block, so the split does not matter).
     pub fn generate(&self, seed: u64, table: &str, rows: std::ops::Range<u64>) -> Column {
+        const GROUP: u64 = 64 * BLOCK_ROWS;
+        let starts: Vec<u64> = std::iter::once(rows.start)
+            .chain((rows.start / GROUP + 1..rows.end.div_ceil(GROUP)).map(|g| g * GROUP))
+            .collect();
+        let parts: Vec<ColumnData> = starts
+            .par_iter()
+            .enumerate()
+            .map(|(i, &a)| {
+                let b = starts.get(i + 1).copied().unwrap_or(rows.end);
+                self.generate_range(seed, table, a..b.max(a))
+            })
+            .collect();
+        let mut data = ColumnData::with_capacity(self.ty, (rows.end - rows.start) as usize);
+        for p in &parts {
+            data.append(p);
+        }
+        Column::new(&self.name, self.ty, data).expect("generated values fit their type")
+    }
+
+    fn generate_range(&self, seed: u64, table: &str, rows: std::ops::Range<u64>) -> ColumnData {
         let mut data = ColumnData::with_capacity(self.ty, (rows.end - rows.start) as usize);
         let zipf = match &self.dist {
             Dist::Select { skew: Skew::Zipf { theta, distinct }, .. } => Some(Zipf::new(*distinct, *theta)),
@@ -161,7 +184,7 @@ impl ColumnGen {
                 push(&mut data, self.ty, *v);
             }
         }
-        Column::new(&self.name, self.ty, data).expect("generated values fit their type")
+        data
     }
 
     fn draw(&self, s: &mut Stream, row: u64, zipf: Option<&Zipf>) -> V {

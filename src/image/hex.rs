@@ -30,7 +30,8 @@ pub fn write_hex<W: Write>(w: &mut W, word_bytes: usize, bytes: &[u8]) -> Result
     Ok(words_for(bytes.len() as u64, word_bytes as u64))
 }
 
-/// Writes segments, each as `// label`, `@addr` (lowercase hex word address) and its words;
+/// Writes segments, each as `// label`, `@addr` (lowercase hex word address) and its words
+/// (an empty segment only as its label line);
 /// returns the number of words written.
 ///
 /// Segments must be sorted by address and must not overlap; this is checked before anything
@@ -67,6 +68,12 @@ pub fn write_hex_segments<W: Write>(
     }
     let mut out = Lines::new(w);
     for seg in segments {
+        if seg.bytes.is_empty() {
+            // An address line with no words after it would point past the end of a
+            // memory sized to the words present; simulators report it as out of range.
+            out.text(&format!("// {} (empty)\n", seg.label))?;
+            continue;
+        }
         out.text(&format!("// {}\n@{:x}\n", seg.label, seg.word_addr))?;
         out.words(word_bytes, seg.bytes)?;
     }

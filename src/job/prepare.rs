@@ -301,7 +301,7 @@ fn scan_params(
         o => return Err(Error::input(format!("kernel.row_ids: `{o}` (expected global or local)"))),
     };
     Ok(ScanParams {
-        predicate,
+        predicate: crate::kernels::scan::fuse_ranges(&predicate, schema),
         output,
         global_ids,
         wide_ids: rows > u64::from(u32::MAX),

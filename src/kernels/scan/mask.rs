@@ -103,24 +103,37 @@ lane_uint!(u8, u16, u32, u64);
 lane_sint!(i8 => u8, i16 => u16, i32 => u32, i64 => u64);
 lane_float!(f32, f64);
 
+/// Packs 64 flags (one per byte, 0 or 1) into a mask word: each group of 8 bytes is
+/// gathered into one byte by a multiply (common practice for bit-packing bytes).
+#[inline(always)]
+fn pack64(flags: &[u8; 64]) -> u64 {
+    let mut w = 0u64;
+    for k in 0..8 {
+        let v = u64::from_le_bytes(flags[k * 8..k * 8 + 8].try_into().expect("8 bytes"));
+        w |= (v.wrapping_mul(0x0102_0408_1020_4080) >> 56) << (8 * k);
+    }
+    w
+}
+
 /// Fills `out[k]` with the mask of rows `64k..64k+64` of `xs` under `f`; bits past the
-/// end of `xs` are zero.
+/// end of `xs` are zero. Flags go through a byte array first: that form vectorises into
+/// compares on every instruction set, where shifting each flag into place does not.
 #[inline(always)]
 fn fill<T: Copy, F: Fn(T) -> bool>(xs: &[T], out: &mut [u64], f: F) {
     let (blocks, tail) = xs.as_chunks::<64>();
+    let mut flags = [0u8; 64];
     for (m, b) in out.iter_mut().zip(blocks) {
-        let mut w = 0u64;
-        for (i, &x) in b.iter().enumerate() {
-            w |= u64::from(f(x)) << i;
+        for (fl, &x) in flags.iter_mut().zip(b) {
+            *fl = u8::from(f(x));
         }
-        *m = w;
+        *m = pack64(&flags);
     }
     if !tail.is_empty() {
-        let mut w = 0u64;
-        for (i, &x) in tail.iter().enumerate() {
-            w |= u64::from(f(x)) << i;
+        flags = [0u8; 64];
+        for (fl, &x) in flags.iter_mut().zip(tail) {
+            *fl = u8::from(f(x));
         }
-        out[blocks.len()] = w;
+        out[blocks.len()] = pack64(&flags);
     }
 }
 
@@ -145,28 +158,14 @@ fn leaf_body<T: Lane>(xs: &[T], test: &Test, out: &mut [u64]) {
         }
         Test::In(list) => {
             out.iter_mut().for_each(|m| *m = 0);
+            let mut tmp = vec![0u64; out.len()];
             for s in list {
                 let c = T::from_scalar(s);
-                let (blocks, tail) = xs.as_chunks::<64>();
-                for (m, b) in out.iter_mut().zip(blocks) {
-                    let mut w = 0u64;
-                    for (i, &x) in b.iter().enumerate() {
-                        w |= u64::from(x == c) << i;
-                    }
-                    *m |= w;
-                }
-                for (i, &x) in tail.iter().enumerate() {
-                    out[blocks.len()] |= u64::from(x == c) << i;
-                }
+                fill(xs, &mut tmp, |x| x == c);
+                out.iter_mut().zip(&tmp).for_each(|(m, t)| *m |= t);
             }
         }
     }
-}
-
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx512f,avx512bw,avx512vl,popcnt,bmi1,bmi2")]
-fn leaf_avx512<T: Lane>(xs: &[T], test: &Test, out: &mut [u64]) {
-    leaf_body(xs, test, out)
 }
 
 #[cfg(target_arch = "x86_64")]
@@ -179,11 +178,27 @@ fn leaf_portable<T: Lane>(xs: &[T], test: &Test, out: &mut [u64]) {
     leaf_body(xs, test, out)
 }
 
-fn leaf<T: Lane>(isa: Isa, xs: &[T], test: &Test, out: &mut [u64]) {
+/// A lane type with every instruction-set path available on this target.
+#[cfg(target_arch = "x86_64")]
+pub trait Simd: Lane + super::avx512::Avx512Lane {}
+#[cfg(target_arch = "x86_64")]
+impl<T: Lane + super::avx512::Avx512Lane> Simd for T {}
+/// A lane type with every instruction-set path available on this target.
+#[cfg(not(target_arch = "x86_64"))]
+pub trait Simd: Lane {}
+#[cfg(not(target_arch = "x86_64"))]
+impl<T: Lane> Simd for T {}
+
+fn leaf<T: Simd>(isa: Isa, xs: &[T], test: &Test, out: &mut [u64]) {
     match isa {
         #[cfg(target_arch = "x86_64")]
-        // SAFETY: `Isa::Avx512` is only produced by `detect` after checking the features.
-        Isa::Avx512 => unsafe { leaf_avx512(xs, test, out) },
+        Isa::Avx512 => {
+            // SAFETY: `Isa::Avx512` is only produced by `detect` after checking the features.
+            let done = unsafe { super::avx512::leaf(xs, test, out) };
+            if done < xs.len() {
+                leaf_portable(&xs[done..], test, &mut out[done / 64..]);
+            }
+        }
         #[cfg(target_arch = "x86_64")]
         // SAFETY: as above, for AVX2.
         Isa::Avx2 => unsafe { leaf_avx2(xs, test, out) },

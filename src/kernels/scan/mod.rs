@@ -14,13 +14,15 @@
 //! start on word boundaries of every column image, so per-chunk word counts add up to
 //! the whole partition's.
 
+#[cfg(target_arch = "x86_64")]
+mod avx512;
 mod mask;
 
 pub use mask::{compact, Isa, RowId};
 
 use rayon::prelude::*;
 
-use crate::kernels::predicate::Bound;
+use crate::kernels::predicate::{Bound, Scalar, Test};
 use crate::ledger::{Cursor, Direction, Key, Ledger, Phase, Traffic};
 use crate::table::{byte_len, column_bytes, ElemType, Table};
 
@@ -249,6 +251,28 @@ fn chunk_records(table: &Table, params: &ScanParams, masks: &[u64], start: usize
             out
         }
     }
+}
+
+/// Rewrites a conjunction of range terms on integer columns as one `between` test per
+/// column (the intersection of its terms), so each column is compared once per row.
+/// Other predicates are returned unchanged. Exact: an integer range is its intersection.
+pub fn fuse_ranges(pred: &Bound, schema: &[(String, ElemType)]) -> Bound {
+    let Some(ranges) = pred.ranges(schema) else {
+        return pred.clone();
+    };
+    let leaf = |r: &crate::kernels::predicate::ColumnRange| {
+        let ty = schema[r.col].1;
+        let (min, max) = crate::gen::columns::int_range(ty);
+        // A range outside the type matches nothing: an inverted between.
+        let (lo, hi) = if r.lo > max || r.hi < min || r.lo > r.hi { (max, min) } else { (r.lo.max(min), r.hi.min(max)) };
+        let s = |v: i128| if ty.is_signed_int() { Scalar::I(v as i64) } else { Scalar::U(v as u64) };
+        Bound::Leaf { col: r.col, test: Test::Between(s(lo), s(hi)) }
+    };
+    ranges
+        .iter()
+        .map(leaf)
+        .reduce(|a, b| Bound::And(Box::new(a), Box::new(b)))
+        .unwrap_or_else(|| pred.clone())
 }
 
 /// The obviously-correct oracle: partition-local ids of matching rows, one row at a time.

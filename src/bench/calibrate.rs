@@ -1,0 +1,713 @@
+//! Host memory-bandwidth calibration: streaming read, write and copy rates for
+//! 1..=N threads, the denominator that kernel benchmarks are reported against.
+//!
+//! Figures are in GB/s, 1 GB = 1e9 bytes. The buffer must be several times the
+//! last-level cache for the figures to describe DRAM rather than cache; smaller
+//! buffers are allowed (tests, cache-resident checks) and then measure cache.
+
+use super::stats::{summarize, time_runs};
+use rayon::ThreadPoolBuilder;
+use serde::{Deserialize, Serialize};
+use std::hint::black_box;
+use std::ops::Range;
+use std::sync::{Mutex, PoisonError};
+
+/// Version of the JSON layout written by [`Calibration::to_json`].
+pub const FORMAT_VERSION: u32 = 1;
+
+/// Default buffer size: 1 GiB, well past the last-level cache of current servers.
+pub const DEFAULT_BYTES: u64 = 1 << 30;
+
+/// Default number of timed repetitions per measure.
+pub const DEFAULT_RUNS: usize = 5;
+
+/// Bytes per cache line; per-thread slices start on line boundaries so no line is
+/// shared between threads (common practice for x86_64 and most AArch64 parts).
+const LINE_BYTES: u64 = 64;
+const LINE_WORDS: usize = (LINE_BYTES / 8) as usize;
+
+/// Each timed sample moves at least this many bytes, repeating passes over small
+/// buffers, so that timer and thread wake-up overhead stay small against the run.
+const MIN_BYTES_PER_SAMPLE: u64 = 64 << 20;
+
+/// Independent u64 accumulators in the read loop: 8 zmm / 16 ymm registers' worth,
+/// enough loads in flight that the loop waits on memory, not on the adds.
+const READ_LANES: usize = 64;
+
+/// Errors from calibration and from loading a saved calibration.
+#[derive(Debug, thiserror::Error)]
+pub enum CalibrationError {
+    /// A parameter is out of range.
+    #[error("calibration parameter {name} = {value} is invalid: {reason}")]
+    InvalidParam {
+        /// Parameter name.
+        name: &'static str,
+        /// Value given.
+        value: u64,
+        /// What is required.
+        reason: &'static str,
+    },
+    /// The measurement buffers could not be allocated.
+    #[error("cannot allocate two calibration buffers of {bytes} bytes each")]
+    Alloc {
+        /// Size of one buffer.
+        bytes: u64,
+    },
+    /// The worker thread pool could not be built.
+    #[error("cannot start a {threads}-thread pool: {message}")]
+    ThreadPool {
+        /// Requested thread count.
+        threads: usize,
+        /// Reason given by the pool builder.
+        message: String,
+    },
+    /// Saved calibration text is not valid JSON of the expected shape.
+    #[error("calibration JSON is invalid: {0}")]
+    Json(#[from] serde_json::Error),
+    /// Saved calibration was written in another layout version.
+    #[error("calibration format_version {found} is not supported (expected {expected})")]
+    FormatVersion {
+        /// Version found in the text.
+        found: u32,
+        /// Version this build reads.
+        expected: u32,
+    },
+    /// Saved calibration holds no measurements.
+    #[error("calibration has no bandwidth points")]
+    NoPoints,
+}
+
+/// What to measure.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct CalibrationParams {
+    /// Thread counts 1..=max_threads are measured.
+    pub max_threads: usize,
+    /// Size of each buffer in bytes: a multiple of 64 with at least one 64-byte line
+    /// per thread. Use several times the last-level cache (the default 1 GiB) to
+    /// measure DRAM.
+    pub bytes: u64,
+    /// Timed repetitions per measure, after one untimed warm-up.
+    pub runs: usize,
+}
+
+impl Default for CalibrationParams {
+    /// All hardware threads, [`DEFAULT_BYTES`], [`DEFAULT_RUNS`].
+    fn default() -> Self {
+        CalibrationParams {
+            max_threads: std::thread::available_parallelism().map_or(1, |n| n.get()),
+            bytes: DEFAULT_BYTES,
+            runs: DEFAULT_RUNS,
+        }
+    }
+}
+
+/// Best measured rates for one thread count, GB/s (1e9 bytes/s).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct BandwidthPoint {
+    /// Worker threads used.
+    pub threads: usize,
+    /// Bytes read per second by a wrapping-sum reduction over the buffer.
+    pub read_gbps: f64,
+    /// Instruction set of the read loop that reached `read_gbps` (every available
+    /// one is tried: on some parts a narrower vector streams faster).
+    pub read_isa: String,
+    /// Bytes written per second by filling the buffer with ordinary (temporal)
+    /// stores. The read-for-ownership traffic this causes is not counted.
+    pub write_gbps: f64,
+    /// Bytes read plus bytes written per second by `copy_from_slice`, so a copy of
+    /// N bytes counts 2N, as STREAM's Copy does (recalled from memory).
+    pub copy_gbps: f64,
+}
+
+/// A saved host calibration.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Calibration {
+    /// Layout version, [`FORMAT_VERSION`] when written by this build.
+    pub format_version: u32,
+    /// Size of each measurement buffer in bytes.
+    pub bytes: u64,
+    /// Timed repetitions per measure.
+    pub runs: usize,
+    /// CPU model name from `/proc/cpuinfo`, or "unknown".
+    pub cpu: String,
+    /// Widest vector instruction set detected at run time ("avx512", "avx2" or
+    /// "baseline"); the write loop uses it and the read loop tries it and narrower.
+    pub isa: String,
+    /// One point per thread count, ascending.
+    pub points: Vec<BandwidthPoint>,
+}
+
+impl Calibration {
+    /// Pretty-printed JSON.
+    pub fn to_json(&self) -> Result<String, CalibrationError> {
+        Ok(serde_json::to_string_pretty(self)?)
+    }
+
+    /// Parses JSON written by [`Calibration::to_json`], rejecting other layout
+    /// versions before looking at the rest of the document.
+    pub fn from_json(text: &str) -> Result<Calibration, CalibrationError> {
+        #[derive(Deserialize)]
+        struct VersionProbe {
+            format_version: u32,
+        }
+        let probe: VersionProbe = serde_json::from_str(text)?;
+        if probe.format_version != FORMAT_VERSION {
+            return Err(CalibrationError::FormatVersion {
+                found: probe.format_version,
+                expected: FORMAT_VERSION,
+            });
+        }
+        let calibration: Calibration = serde_json::from_str(text)?;
+        if calibration.points.is_empty() {
+            return Err(CalibrationError::NoPoints);
+        }
+        Ok(calibration)
+    }
+
+    /// Read rate measured with `threads` threads, or the best over all thread
+    /// counts when that count was not measured; 0.0 if there are no points.
+    pub fn best_read_gbps(&self, threads: usize) -> f64 {
+        match self.points.iter().find(|p| p.threads == threads) {
+            Some(point) => point.read_gbps,
+            None => self.points.iter().map(|p| p.read_gbps).fold(0.0, f64::max),
+        }
+    }
+}
+
+/// Measures read, write and copy bandwidth for 1..=`params.max_threads` threads.
+///
+/// Buffers are allocated and written once before any timing so page faults are
+/// not measured. Each thread works on its own contiguous, line-aligned slice.
+/// Each measure reports its best (shortest) of `params.runs` timed runs after one
+/// warm-up: bandwidth is a capacity figure and interference only ever slows a run
+/// down, so the fastest run is the closest to it (common practice). `progress`
+/// is called with (measures done, measures total) as the work advances.
+pub fn calibrate(
+    params: &CalibrationParams,
+    progress: &mut dyn FnMut(usize, usize),
+) -> Result<Calibration, CalibrationError> {
+    let words = validate(params)?;
+    let mut src = AlignedWords::new(words, params.bytes)?;
+    let mut dst = AlignedWords::new(words, params.bytes)?;
+    src.as_mut_slice()
+        .iter_mut()
+        .enumerate()
+        .for_each(|(i, w)| *w = pattern(i));
+    let passes = MIN_BYTES_PER_SAMPLE.div_ceil(params.bytes).max(1) as usize;
+    let sample_bytes = params.bytes as f64 * passes as f64;
+    let isas = Isa::available();
+    let widest = isas[0];
+
+    let total = params.max_threads * 3;
+    let mut done = 0;
+    progress(done, total);
+    let mut points = Vec::with_capacity(params.max_threads);
+    for threads in 1..=params.max_threads {
+        let pool = ThreadPoolBuilder::new()
+            .num_threads(threads)
+            .build()
+            .map_err(|e| CalibrationError::ThreadPool {
+                threads,
+                message: e.to_string(),
+            })?;
+        let ranges = split_lines(words, threads);
+        let best_seconds = |f: &mut dyn FnMut()| summarize(&time_runs(1, params.runs, f)).min_s;
+
+        let (read_isa, read_s) = {
+            let src_parts = slices(src.as_slice(), &ranges);
+            isas.iter()
+                .map(|&isa| {
+                    let secs = best_seconds(&mut || {
+                        pool.broadcast(|ctx| {
+                            for _ in 0..passes {
+                                black_box(read_sum(isa, black_box(src_parts[ctx.index()])));
+                            }
+                        });
+                    });
+                    (isa, secs)
+                })
+                .fold((widest, f64::INFINITY), |best, cur| {
+                    if cur.1 < best.1 {
+                        cur
+                    } else {
+                        best
+                    }
+                })
+        };
+        done += 1;
+        progress(done, total);
+
+        let write_s = {
+            let dst_parts = slices_mut(dst.as_mut_slice(), &ranges);
+            best_seconds(&mut || {
+                pool.broadcast(|ctx| {
+                    let mut part = lock(&dst_parts[ctx.index()]);
+                    for pass in 0..passes {
+                        fill(widest, black_box(&mut part[..]), pattern(pass));
+                    }
+                });
+            })
+        };
+        done += 1;
+        progress(done, total);
+
+        let copy_s = {
+            let src_parts = slices(src.as_slice(), &ranges);
+            let dst_parts = slices_mut(dst.as_mut_slice(), &ranges);
+            best_seconds(&mut || {
+                pool.broadcast(|ctx| {
+                    let mut part = lock(&dst_parts[ctx.index()]);
+                    for _ in 0..passes {
+                        black_box(&mut part[..]).copy_from_slice(src_parts[ctx.index()]);
+                    }
+                });
+            })
+        };
+        done += 1;
+        progress(done, total);
+
+        points.push(BandwidthPoint {
+            threads,
+            read_gbps: sample_bytes / read_s / 1e9,
+            read_isa: read_isa.name().to_string(),
+            write_gbps: sample_bytes / write_s / 1e9,
+            copy_gbps: 2.0 * sample_bytes / copy_s / 1e9,
+        });
+    }
+
+    Ok(Calibration {
+        format_version: FORMAT_VERSION,
+        bytes: params.bytes,
+        runs: params.runs,
+        cpu: cpu_model(),
+        isa: widest.name().to_string(),
+        points,
+    })
+}
+
+/// Checks `params` and returns the buffer length in u64 words.
+fn validate(params: &CalibrationParams) -> Result<usize, CalibrationError> {
+    let invalid = |name, value, reason| {
+        Err(CalibrationError::InvalidParam {
+            name,
+            value,
+            reason,
+        })
+    };
+    if params.max_threads == 0 {
+        return invalid("max_threads", 0, "must be at least 1");
+    }
+    if params.runs == 0 {
+        return invalid("runs", 0, "must be at least 1");
+    }
+    if !params.bytes.is_multiple_of(LINE_BYTES) {
+        return invalid("bytes", params.bytes, "must be a multiple of 64");
+    }
+    if params.bytes / LINE_BYTES < params.max_threads as u64 {
+        return invalid(
+            "bytes",
+            params.bytes,
+            "must hold at least one 64-byte line per thread",
+        );
+    }
+    match usize::try_from(params.bytes / 8) {
+        Ok(words) => Ok(words),
+        Err(_) => invalid(
+            "bytes",
+            params.bytes,
+            "exceeds this platform's address space",
+        ),
+    }
+}
+
+/// Deterministic, non-repeating fill so every byte matters to the read sum and the
+/// fill value is never a byte-repeated constant (which would become a memset).
+fn pattern(i: usize) -> u64 {
+    // 2^64 / golden ratio, the Fibonacci-hashing multiplier (common practice).
+    (i as u64 ^ 0x5555).wrapping_mul(0x9E37_79B9_7F4A_7C15)
+}
+
+/// Splits `words` into `threads` contiguous ranges of whole cache lines, as even
+/// as possible; a trailing partial line goes to the last range.
+fn split_lines(words: usize, threads: usize) -> Vec<Range<usize>> {
+    let lines = words / LINE_WORDS;
+    let bound = |t: usize| match t {
+        _ if t == threads => words,
+        _ => lines * t / threads * LINE_WORDS,
+    };
+    (0..threads).map(|t| bound(t)..bound(t + 1)).collect()
+}
+
+fn slices<'a>(data: &'a [u64], ranges: &[Range<usize>]) -> Vec<&'a [u64]> {
+    ranges.iter().map(|r| &data[r.clone()]).collect()
+}
+
+/// Disjoint mutable slices, each behind a mutex so a shared broadcast closure can
+/// hand slice i to thread i; each lock is only ever taken by one thread.
+fn slices_mut<'a>(mut data: &'a mut [u64], ranges: &[Range<usize>]) -> Vec<Mutex<&'a mut [u64]>> {
+    let mut consumed = 0;
+    ranges
+        .iter()
+        .map(|r| {
+            let (head, tail) = std::mem::take(&mut data).split_at_mut(r.end - consumed);
+            consumed = r.end;
+            data = tail;
+            Mutex::new(head)
+        })
+        .collect()
+}
+
+fn lock<'m, 'a>(part: &'m Mutex<&'a mut [u64]>) -> std::sync::MutexGuard<'m, &'a mut [u64]> {
+    // The kernels cannot panic, so a poisoned lock still guards valid data.
+    part.lock().unwrap_or_else(PoisonError::into_inner)
+}
+
+/// A u64 buffer whose visible part starts on a cache-line boundary, so vector
+/// loads never straddle lines (large heap blocks are usually only 16-byte aligned).
+struct AlignedWords {
+    storage: Vec<u64>,
+    offset: usize,
+    words: usize,
+}
+
+impl AlignedWords {
+    /// Allocates and zero-fills (so touches every page of) `words` words.
+    fn new(words: usize, bytes: u64) -> Result<Self, CalibrationError> {
+        let padded = words.checked_add(LINE_WORDS - 1);
+        let mut storage = Vec::new();
+        padded
+            .and_then(|n| storage.try_reserve_exact(n).ok())
+            .ok_or(CalibrationError::Alloc { bytes })?;
+        storage.resize(storage.capacity(), 0);
+        // Alignment only affects speed, so an unavailable offset falls back to 0.
+        let offset = storage.as_ptr().align_offset(LINE_BYTES as usize);
+        let offset = if offset < LINE_WORDS { offset } else { 0 };
+        Ok(AlignedWords {
+            storage,
+            offset,
+            words,
+        })
+    }
+
+    fn as_slice(&self) -> &[u64] {
+        &self.storage[self.offset..self.offset + self.words]
+    }
+
+    fn as_mut_slice(&mut self) -> &mut [u64] {
+        &mut self.storage[self.offset..self.offset + self.words]
+    }
+}
+
+/// First "model name" in `/proc/cpuinfo`, or "unknown" where there is none.
+fn cpu_model() -> String {
+    std::fs::read_to_string("/proc/cpuinfo")
+        .ok()
+        .and_then(|text| {
+            text.lines()
+                .filter_map(|line| line.split_once(':'))
+                .find(|(key, _)| key.trim() == "model name")
+                .map(|(_, value)| value.trim().to_string())
+        })
+        .unwrap_or_else(|| "unknown".to_string())
+}
+
+/// A vector instruction set the running CPU supports. Values are only created by
+/// [`Isa::available`], after run-time detection, which is what makes the
+/// `target_feature` calls in [`run_kernel`] sound.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Isa {
+    #[cfg(target_arch = "x86_64")]
+    Avx512,
+    #[cfg(target_arch = "x86_64")]
+    Avx2,
+    Baseline,
+}
+
+impl Isa {
+    /// Supported instruction sets, widest first; never empty.
+    fn available() -> Vec<Isa> {
+        let mut isas = Vec::new();
+        #[cfg(target_arch = "x86_64")]
+        {
+            if is_x86_feature_detected!("avx512f") {
+                isas.push(Isa::Avx512);
+            }
+            if is_x86_feature_detected!("avx2") {
+                isas.push(Isa::Avx2);
+            }
+        }
+        isas.push(Isa::Baseline);
+        isas
+    }
+
+    fn name(self) -> &'static str {
+        match self {
+            #[cfg(target_arch = "x86_64")]
+            Isa::Avx512 => "avx512",
+            #[cfg(target_arch = "x86_64")]
+            Isa::Avx2 => "avx2",
+            Isa::Baseline => "baseline",
+        }
+    }
+}
+
+/// A loop body compiled once per instruction set: `run` is inlined into each
+/// `target_feature` wrapper, so the compiler vectorises it for that set.
+trait Kernel {
+    type Output;
+    fn run(self) -> Self::Output;
+}
+
+/// Wrapping sum of every word.
+struct ReadSum<'a>(&'a [u64]);
+
+impl Kernel for ReadSum<'_> {
+    type Output = u64;
+
+    #[inline(always)]
+    fn run(self) -> u64 {
+        let mut acc = [0u64; READ_LANES];
+        let mut blocks = self.0.chunks_exact(READ_LANES);
+        for block in &mut blocks {
+            for (a, &w) in acc.iter_mut().zip(block) {
+                *a = a.wrapping_add(w);
+            }
+        }
+        let tail = blocks.remainder().iter();
+        acc.iter().chain(tail).fold(0, |s, &w| s.wrapping_add(w))
+    }
+}
+
+/// Stores one value into every word.
+struct Fill<'a>(&'a mut [u64], u64);
+
+impl Kernel for Fill<'_> {
+    type Output = ();
+
+    #[inline(always)]
+    fn run(self) {
+        self.0.fill(self.1);
+    }
+}
+
+fn read_sum(isa: Isa, data: &[u64]) -> u64 {
+    run_kernel(isa, ReadSum(data))
+}
+
+fn fill(isa: Isa, data: &mut [u64], value: u64) {
+    run_kernel(isa, Fill(data, value))
+}
+
+fn run_kernel<K: Kernel>(isa: Isa, kernel: K) -> K::Output {
+    match isa {
+        // SAFETY: an `Isa` value exists only if `Isa::available` detected it.
+        #[cfg(target_arch = "x86_64")]
+        Isa::Avx512 => unsafe { run_avx512(kernel) },
+        // SAFETY: as above.
+        #[cfg(target_arch = "x86_64")]
+        Isa::Avx2 => unsafe { run_avx2(kernel) },
+        Isa::Baseline => kernel.run(),
+    }
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx512f")]
+unsafe fn run_avx512<K: Kernel>(kernel: K) -> K::Output {
+    kernel.run()
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+unsafe fn run_avx2<K: Kernel>(kernel: K) -> K::Output {
+    kernel.run()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn small_params(max_threads: usize) -> CalibrationParams {
+        CalibrationParams {
+            max_threads,
+            bytes: 4 << 20,
+            runs: 1,
+        }
+    }
+
+    #[test]
+    fn calibration_gives_positive_finite_rates_per_thread_count() {
+        let mut calls = Vec::new();
+        let cal = calibrate(&small_params(2), &mut |done, total| {
+            calls.push((done, total))
+        })
+        .unwrap();
+        assert_eq!(cal.format_version, FORMAT_VERSION);
+        assert_eq!((cal.bytes, cal.runs), (4 << 20, 1));
+        assert_eq!(cal.isa, Isa::available()[0].name());
+        let threads: Vec<usize> = cal.points.iter().map(|p| p.threads).collect();
+        assert_eq!(threads, [1, 2]);
+        let names: Vec<&str> = Isa::available().iter().map(|i| i.name()).collect();
+        for p in &cal.points {
+            for rate in [p.read_gbps, p.write_gbps, p.copy_gbps] {
+                assert!(rate.is_finite() && rate > 0.0, "{p:?}");
+            }
+            assert!(names.contains(&p.read_isa.as_str()), "{p:?}");
+        }
+        let expected: Vec<(usize, usize)> = (0..=6).map(|d| (d, 6)).collect();
+        assert_eq!(calls, expected);
+    }
+
+    #[test]
+    fn json_round_trips() {
+        let cal = calibrate(&small_params(1), &mut |_, _| {}).unwrap();
+        let text = cal.to_json().unwrap();
+        assert_eq!(Calibration::from_json(&text).unwrap(), cal);
+    }
+
+    fn sample() -> Calibration {
+        let point = |threads, read_gbps| BandwidthPoint {
+            threads,
+            read_gbps,
+            read_isa: "avx2".to_string(),
+            write_gbps: 1.0,
+            copy_gbps: 2.0,
+        };
+        Calibration {
+            format_version: FORMAT_VERSION,
+            bytes: DEFAULT_BYTES,
+            runs: 3,
+            cpu: "test part".to_string(),
+            isa: "avx512".to_string(),
+            points: vec![point(1, 10.0), point(2, 30.0), point(4, 25.0)],
+        }
+    }
+
+    #[test]
+    fn best_read_uses_matching_point_else_the_maximum() {
+        let cal = sample();
+        assert_eq!(cal.best_read_gbps(1), 10.0);
+        assert_eq!(cal.best_read_gbps(4), 25.0);
+        assert_eq!(cal.best_read_gbps(3), 30.0);
+    }
+
+    #[test]
+    fn from_json_rejects_other_format_version() {
+        let text = sample().to_json().unwrap().replace(
+            &format!("\"format_version\": {FORMAT_VERSION}"),
+            "\"format_version\": 999",
+        );
+        let err = Calibration::from_json(&text).unwrap_err();
+        assert_eq!(
+            err.to_string(),
+            format!("calibration format_version 999 is not supported (expected {FORMAT_VERSION})")
+        );
+    }
+
+    #[test]
+    fn from_json_reports_where_malformed_json_breaks() {
+        let err = Calibration::from_json("{\n  \"format_version\": 1,\n  \"bytes\": oops\n}")
+            .unwrap_err();
+        let msg = err.to_string();
+        assert!(msg.starts_with("calibration JSON is invalid: "), "{msg}");
+        assert!(msg.contains("line 3"), "{msg}");
+    }
+
+    #[test]
+    fn from_json_rejects_missing_fields_and_empty_points() {
+        let err = Calibration::from_json("{\"format_version\": 1}").unwrap_err();
+        assert!(err.to_string().contains("missing field"), "{err}");
+        let mut empty = sample();
+        empty.points.clear();
+        let err = Calibration::from_json(&empty.to_json().unwrap()).unwrap_err();
+        assert_eq!(err.to_string(), "calibration has no bandwidth points");
+    }
+
+    #[test]
+    fn bad_params_are_rejected_with_the_value() {
+        let cases = [
+            (
+                CalibrationParams {
+                    max_threads: 0,
+                    ..small_params(1)
+                },
+                "max_threads = 0",
+            ),
+            (
+                CalibrationParams {
+                    runs: 0,
+                    ..small_params(1)
+                },
+                "runs = 0",
+            ),
+            (
+                CalibrationParams {
+                    bytes: 1000,
+                    ..small_params(1)
+                },
+                "bytes = 1000 is invalid: must be a multiple of 64",
+            ),
+            (
+                CalibrationParams {
+                    bytes: 128,
+                    ..small_params(3)
+                },
+                "bytes = 128 is invalid: must hold at least one",
+            ),
+        ];
+        for (params, needle) in cases {
+            let err = calibrate(&params, &mut |_, _| {}).unwrap_err();
+            assert!(err.to_string().contains(needle), "{err} lacks {needle}");
+        }
+    }
+
+    #[test]
+    fn read_kernel_matches_plain_sum_on_every_isa() {
+        // Odd length and every start offset within a line exercise the vector
+        // body, the tail, and unaligned starts.
+        let data: Vec<u64> = (0..READ_LANES * 5 + 13).map(pattern).collect();
+        for isa in Isa::available() {
+            for start in 0..LINE_WORDS {
+                let part = &data[start..];
+                let plain = part.iter().fold(0u64, |s, &w| s.wrapping_add(w));
+                assert_eq!(read_sum(isa, part), plain, "{} from {start}", isa.name());
+            }
+        }
+    }
+
+    #[test]
+    fn fill_kernel_writes_every_word_on_every_isa() {
+        for isa in Isa::available() {
+            let mut data = vec![0u64; READ_LANES * 3 + 5];
+            fill(isa, &mut data[1..], 7);
+            assert_eq!(data[0], 0, "{}", isa.name());
+            assert!(data[1..].iter().all(|&w| w == 7), "{}", isa.name());
+        }
+    }
+
+    #[test]
+    fn split_covers_all_words_in_line_aligned_pieces() {
+        for (words, threads) in [(8, 1), (64, 2), (40, 4), (8 * 7 + 3, 3)] {
+            let ranges = split_lines(words, threads);
+            assert_eq!(ranges.len(), threads);
+            assert_eq!(ranges[0].start, 0);
+            assert_eq!(ranges[threads - 1].end, words);
+            for pair in ranges.windows(2) {
+                assert_eq!(pair[0].end, pair[1].start);
+                assert_eq!(pair[1].start % LINE_WORDS, 0);
+            }
+            assert!(ranges.iter().all(|r| r.len() >= LINE_WORDS), "{ranges:?}");
+        }
+    }
+
+    #[test]
+    fn mutable_slices_match_ranges() {
+        let mut data: Vec<u64> = (0..40).collect();
+        let ranges = split_lines(40, 3);
+        let parts = slices_mut(&mut data, &ranges);
+        for (part, range) in parts.iter().zip(&ranges) {
+            let part = lock(part);
+            assert_eq!(part.len(), range.len());
+            assert_eq!(part[0], range.start as u64);
+        }
+    }
+}

@@ -1,0 +1,6 @@
+//! Host benchmarks: streaming-bandwidth calibration, timing statistics, and kernel
+//! benchmarks reported as a fraction of the calibrated bandwidth.
+
+pub mod calibrate;
+pub mod scan;
+pub mod stats;

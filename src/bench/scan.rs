@@ -1,0 +1,156 @@
+//! The scan benchmark: one `u32` column, a half-open range predicate, row-id output, timed
+//! at several thread counts and selectivities, reported against the host's calibrated
+//! streaming read bandwidth.
+
+use serde::Serialize;
+
+use super::stats::{summarize, time_runs, Summary};
+use crate::gen::{ColumnGen, Dist, Shape, Skew, TableGen};
+use crate::kernels::predicate;
+use crate::kernels::scan::{fuse_ranges, scan_partition, EngineIo, Isa, ScanOutput, ScanParams};
+use crate::table::{ElemType, Table};
+
+/// Start of the match range the bench's column is generated for.
+pub const LO: u32 = 1 << 20;
+/// End (exclusive) of the match range.
+pub const HI: u32 = 1 << 21;
+
+/// What to measure.
+#[derive(Debug, Clone)]
+pub struct ScanBenchParams {
+    /// Rows of the `u32` column.
+    pub rows: u64,
+    /// Thread counts.
+    pub threads: Vec<usize>,
+    /// Selectivities.
+    pub selectivities: Vec<f64>,
+    /// Timed runs per point (after one warm-up).
+    pub runs: usize,
+}
+
+/// One measured point.
+#[derive(Debug, Clone, Serialize)]
+pub struct ScanPoint {
+    /// Worker threads.
+    pub threads: usize,
+    /// Requested selectivity.
+    pub selectivity: f64,
+    /// Matching rows.
+    pub matches: u64,
+    /// Input bytes consumed per run.
+    pub bytes: u64,
+    /// Timing statistics.
+    #[serde(flatten)]
+    pub time: Summary,
+    /// Input consumed per second at the median time, in GB/s (10^9 bytes).
+    pub gbps: f64,
+    /// Calibrated streaming read bandwidth at this thread count, GB/s.
+    pub read_gbps: f64,
+    /// `gbps / read_gbps`.
+    pub fraction_of_read: f64,
+    /// Instruction set of the kernel.
+    pub isa: &'static str,
+}
+
+/// The bench's column: `rows` u32 values, `selectivity` of them in `[LO, HI)`.
+pub fn bench_table(rows: u64, selectivity: f64) -> Table {
+    let g = TableGen {
+        table: "bench".into(),
+        rows,
+        seed: 1,
+        shape: Shape::Columns(vec![ColumnGen {
+            name: "v".into(),
+            ty: ElemType::U32,
+            dist: Dist::Select {
+                selectivity,
+                lo: f64::from(LO),
+                hi: f64::from(HI),
+                min: 0.0,
+                max: f64::from(u32::MAX),
+                skew: Skew::Uniform,
+            },
+            corners: false,
+        }]),
+    };
+    g.generate(0..rows)
+}
+
+/// The bench's scan parameters: `v >= LO and v < HI`, row ids.
+pub fn bench_params(table: &Table) -> ScanParams {
+    let text = format!("v >= {LO} and v < {HI}");
+    let schema = table.schema();
+    let predicate = predicate::compile(&text, &schema).expect("the bench predicate is valid");
+    ScanParams {
+        predicate: fuse_ranges(&predicate, &schema),
+        output: ScanOutput::RowIds,
+        global_ids: true,
+        wide_ids: false,
+    }
+}
+
+/// Runs the benchmark; `read_gbps(threads)` gives the calibrated read bandwidth and
+/// `progress(done, total)` is called after each point. `table_for` receives each table
+/// once, after it is generated (for saving it).
+pub fn bench_scan(
+    p: &ScanBenchParams,
+    read_gbps: &dyn Fn(usize) -> f64,
+    progress: &mut dyn FnMut(usize, usize),
+    table_for: &mut dyn FnMut(f64, &Table),
+) -> Vec<ScanPoint> {
+    let isa = Isa::detect();
+    let total = p.threads.len() * p.selectivities.len();
+    let mut points = Vec::new();
+    for &s in &p.selectivities {
+        let table = bench_table(p.rows, s);
+        table_for(s, &table);
+        let params = bench_params(&table);
+        let io = EngineIo {
+            engine: 0,
+            channel: 0,
+            word_bytes: 64,
+            column_bases: vec![0],
+            row_base: None,
+            out_base: 0,
+            count_base: 0,
+        };
+        for &t in &p.threads {
+            let pool = rayon::ThreadPoolBuilder::new().num_threads(t).build().expect("thread pool");
+            let mut matches = 0;
+            let times = pool.install(|| {
+                time_runs(1, p.runs, || {
+                    let r = scan_partition(isa, &table, 0, &params, &io);
+                    matches = std::hint::black_box(r.count);
+                })
+            });
+            let time = summarize(&times);
+            let bytes = p.rows * 4;
+            let gbps = bytes as f64 / time.median_s / 1e9;
+            let rb = read_gbps(t);
+            points.push(ScanPoint {
+                threads: t,
+                selectivity: s,
+                matches,
+                bytes,
+                time,
+                gbps,
+                read_gbps: rb,
+                fraction_of_read: if rb > 0.0 { gbps / rb } else { 0.0 },
+                isa: isa.name(),
+            });
+            progress(points.len(), total);
+        }
+    }
+    points
+}
+
+/// The points as CSV.
+pub fn to_csv(points: &[ScanPoint]) -> String {
+    let mut s = String::from("threads,selectivity,matches,bytes,runs,median_s,min_s,max_s,gbps,read_gbps,fraction_of_read,isa\n");
+    for p in points {
+        s.push_str(&format!(
+            "{},{},{},{},{},{:.6},{:.6},{:.6},{:.3},{:.3},{:.3},{}\n",
+            p.threads, p.selectivity, p.matches, p.bytes, p.time.runs, p.time.median_s, p.time.min_s, p.time.max_s, p.gbps, p.read_gbps, p.fraction_of_read, p.isa
+        ));
+    }
+    s
+}
