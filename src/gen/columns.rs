@@ -166,6 +166,8 @@ impl ColumnGen {
             _ => None,
         };
         let corners = if self.corners { self.corner_values() } else { Vec::new() };
+        let ip = IntParams::of(&self.dist);
+        let (tmin, tmax) = if self.ty.is_float() { (0, 0) } else { int_range(self.ty) };
         let mut block_vals: Vec<V> = Vec::with_capacity(BLOCK_ROWS as usize);
         let first_block = rows.start / BLOCK_ROWS;
         let last_block = rows.end.div_ceil(BLOCK_ROWS);
@@ -173,7 +175,7 @@ impl ColumnGen {
             let mut s = Stream::new(seed, table, &self.name, b);
             let b0 = b * BLOCK_ROWS;
             block_vals.clear();
-            block_vals.extend((b0..b0 + BLOCK_ROWS).map(|r| self.draw(&mut s, r, zipf.as_ref())));
+            block_vals.extend((b0..b0 + BLOCK_ROWS).map(|r| self.draw(&mut s, r, zipf.as_ref(), &ip)));
             for c in &corners {
                 let at = s.int_in(0, BLOCK_ROWS as i128 - 1) as usize;
                 block_vals[at] = *c;
@@ -181,20 +183,20 @@ impl ColumnGen {
             let lo = rows.start.max(b0) - b0;
             let hi = rows.end.min(b0 + BLOCK_ROWS) - b0;
             for v in &block_vals[lo as usize..hi as usize] {
-                push(&mut data, self.ty, *v);
+                push(&mut data, *v, tmin, tmax);
             }
         }
         data
     }
 
-    fn draw(&self, s: &mut Stream, row: u64, zipf: Option<&Zipf>) -> V {
+    fn draw(&self, s: &mut Stream, row: u64, zipf: Option<&Zipf>, ip: &IntParams) -> V {
         let float = self.ty.is_float();
         match &self.dist {
             Dist::Uniform { min, max } => {
                 if float {
                     V::F(min + (max - min) * s.unit())
                 } else {
-                    V::I(s.int_in(*min as i128, *max as i128))
+                    V::I(s.int_in(ip.min, ip.max))
                 }
             }
             Dist::Normal { mean, sd, min, max } => {
@@ -209,7 +211,7 @@ impl ColumnGen {
                 if float {
                     V::F(start + step * row as f64)
                 } else {
-                    V::I(*start as i128 + *step as i128 * row as i128)
+                    V::I(ip.lo + ip.hi * row as i128)
                 }
             }
             Dist::Select { selectivity, lo, hi, min, max, .. } => {
@@ -228,7 +230,7 @@ impl ColumnGen {
                         V::F(if x < a { min + x } else { hi + (x - a) })
                     }
                 } else {
-                    let (lo, hi, min, max) = (*lo as i128, *hi as i128, *min as i128, *max as i128);
+                    let IntParams { lo, hi, min, max } = *ip;
                     let (side_lo, count) = if hit { (lo, hi - lo) } else { (0, (lo - min) + (max - hi + 1)) };
                     let k = match zipf {
                         Some(z) => spread_rank(z.sample(s), z.ranks() as i128, count, s),
@@ -243,6 +245,28 @@ impl ColumnGen {
                     }
                 }
             }
+        }
+    }
+}
+
+/// Integer forms of a distribution's parameters, converted once per call rather than per
+/// row (`lo`/`hi` hold `start`/`step` for sequences).
+#[derive(Debug, Clone, Copy, Default)]
+struct IntParams {
+    lo: i128,
+    hi: i128,
+    min: i128,
+    max: i128,
+}
+
+impl IntParams {
+    fn of(d: &Dist) -> IntParams {
+        let i = |x: f64| x as i128;
+        match *d {
+            Dist::Uniform { min, max } => IntParams { min: i(min), max: i(max), ..Default::default() },
+            Dist::Sequence { start, step } => IntParams { lo: i(start), hi: i(step), ..Default::default() },
+            Dist::Select { lo, hi, min, max, .. } => IntParams { lo: i(lo), hi: i(hi), min: i(min), max: i(max) },
+            Dist::Normal { .. } => IntParams::default(),
         }
     }
 }
@@ -271,27 +295,27 @@ fn next_down(x: f64, ty: ElemType) -> f64 {
     }
 }
 
-/// Converts and appends; integers are clamped to the type, floats rounded to nearest.
-fn push(data: &mut ColumnData, ty: ElemType, v: V) {
-    let (tmin, tmax) = if ty.is_float() { (0, 0) } else { int_range(ty) };
-    let i = match v {
+/// Converts and appends; integers are clamped to the type range `[tmin, tmax]`, floats
+/// rounded to nearest.
+fn push(data: &mut ColumnData, v: V, tmin: i128, tmax: i128) {
+    let int = || match v {
         V::I(i) => i.clamp(tmin, tmax),
         V::F(f) => (libm::round(f) as i128).clamp(tmin, tmax),
     };
-    let f = match v {
+    let float = || match v {
         V::I(i) => i as f64,
         V::F(f) => f,
     };
     match data {
-        ColumnData::U8(x) => x.push(i as u8),
-        ColumnData::U16(x) => x.push(i as u16),
-        ColumnData::U32(x) => x.push(i as u32),
-        ColumnData::U64(x) => x.push(i as u64),
-        ColumnData::I8(x) => x.push(i as i8),
-        ColumnData::I16(x) => x.push(i as i16),
-        ColumnData::I32(x) => x.push(i as i32),
-        ColumnData::I64(x) => x.push(i as i64),
-        ColumnData::F32(x) => x.push(f as f32),
-        ColumnData::F64(x) => x.push(f),
+        ColumnData::U8(x) => x.push(int() as u8),
+        ColumnData::U16(x) => x.push(int() as u16),
+        ColumnData::U32(x) => x.push(int() as u32),
+        ColumnData::U64(x) => x.push(int() as u64),
+        ColumnData::I8(x) => x.push(int() as i8),
+        ColumnData::I16(x) => x.push(int() as i16),
+        ColumnData::I32(x) => x.push(int() as i32),
+        ColumnData::I64(x) => x.push(int() as i64),
+        ColumnData::F32(x) => x.push(float() as f32),
+        ColumnData::F64(x) => x.push(float()),
     }
 }

@@ -284,36 +284,16 @@ fn clear_tail(masks: &mut [u64], len: usize) {
     }
 }
 
-/// A row-id element type (`u32`, or `u64` for partitions past 2^32 rows).
-pub trait RowId: Copy + Send {
-    /// The id, truncated to the type (callers pick a type wide enough).
-    fn from_u64(v: u64) -> Self;
-}
-impl RowId for u32 {
-    #[inline(always)]
-    fn from_u64(v: u64) -> Self {
-        v as u32
-    }
-}
-impl RowId for u64 {
-    #[inline(always)]
-    fn from_u64(v: u64) -> Self {
-        v
-    }
-}
-
-/// Appends `base + i` for every set bit i of `masks` (row 64k+j is bit j of word k) to
-/// `out`, walking set bits with trailing-zero counts: work is proportional to words plus
-/// matches, and nothing branches on rows that do not match.
-#[inline]
-pub fn compact<I: RowId>(masks: &[u64], base: u64, out: &mut Vec<I>) {
-    let total: usize = masks.iter().map(|m| m.count_ones() as usize).sum();
-    out.reserve(total);
+/// Calls `f(i)` for every set bit i of `masks` (row 64k+j is bit j of word k), in
+/// ascending order, walking set bits with trailing-zero counts: the work is one test per
+/// word plus one step per match, and nothing branches on rows that do not match.
+#[inline(always)]
+pub fn for_each_match(masks: &[u64], mut f: impl FnMut(u64)) {
     for (k, &m0) in masks.iter().enumerate() {
         let mut m = m0;
-        let b = base + 64 * k as u64;
+        let b = 64 * k as u64;
         while m != 0 {
-            out.push(I::from_u64(b + u64::from(m.trailing_zeros())));
+            f(b + u64::from(m.trailing_zeros()));
             m &= m - 1;
         }
     }

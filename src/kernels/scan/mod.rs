@@ -18,7 +18,7 @@
 mod avx512;
 mod mask;
 
-pub use mask::{compact, Isa, RowId};
+pub use mask::{for_each_match, Isa};
 
 use rayon::prelude::*;
 
@@ -123,10 +123,16 @@ pub struct ScanResult {
 }
 
 struct ChunkOut {
-    masks: Vec<u64>,
-    ids: Vec<u8>,
+    out: Vec<u8>,
     count: u64,
     read: Traffic,
+}
+
+/// A worker's reusable buffers: the chunk's mask words and the predicate's temporaries.
+#[derive(Default)]
+struct Worker {
+    masks: Vec<u64>,
+    scratch: mask::Scratch,
 }
 
 /// Scans one partition (`table` holds just its rows; `row_start` is its first global row).
@@ -142,10 +148,11 @@ pub fn scan_partition(
     let id_base = if params.global_ids { row_start } else { 0 };
     let chunks: Vec<ChunkOut> = (0..rows.div_ceil(CHUNK_ROWS))
         .into_par_iter()
-        .map_init(mask::Scratch::default, |scratch, c| {
+        .map_init(Worker::default, |w, c| {
             let r = c * CHUNK_ROWS..((c + 1) * CHUNK_ROWS).min(rows);
-            let mut masks = vec![0u64; r.len().div_ceil(64)];
-            mask::eval(isa, &params.predicate, table, r.clone(), &mut masks, scratch);
+            w.masks.resize(r.len().div_ceil(64), 0);
+            let masks = &mut w.masks[..r.len().div_ceil(64)];
+            mask::eval(isa, &params.predicate, table, r.clone(), masks, &mut w.scratch);
             let count = masks.iter().map(|m| u64::from(m.count_ones())).sum();
             let mut read = Traffic::default();
             let (start, len) = (r.start as u64, r.len() as u64);
@@ -163,35 +170,15 @@ pub fn scan_partition(
                     read += cur.traffic;
                 }
             }
-            let ids = chunk_records(table, params, &masks, r.start, id_base);
-            ChunkOut {
-                masks,
-                ids,
-                count,
-                read,
-            }
+            let out = chunk_records(table, params, masks, r.clone(), id_base, count);
+            ChunkOut { out, count, read }
         })
         .collect();
     let count = chunks.iter().map(|c| c.count).sum();
-    let out = match params.output {
-        ScanOutput::Bitmap => {
-            let mut out = Vec::with_capacity(rows.div_ceil(8));
-            for c in &chunks {
-                for m in &c.masks {
-                    out.extend_from_slice(&m.to_le_bytes());
-                }
-            }
-            out.truncate(rows.div_ceil(8));
-            out
-        }
-        _ => {
-            let mut out = Vec::with_capacity(chunks.iter().map(|c| c.ids.len()).sum());
-            for c in &chunks {
-                out.extend_from_slice(&c.ids);
-            }
-            out
-        }
-    };
+    let mut out = Vec::with_capacity(chunks.iter().map(|c| c.out.len()).sum());
+    for c in &chunks {
+        out.extend_from_slice(&c.out);
+    }
     let mut ledger = Ledger::new();
     let mut read = Traffic::default();
     for c in &chunks {
@@ -221,33 +208,44 @@ pub fn touched_columns(params: &ScanParams) -> Vec<usize> {
     cols
 }
 
-/// The output records of one chunk: row ids or projected rows (empty for bitmaps).
-fn chunk_records(table: &Table, params: &ScanParams, masks: &[u64], start: usize, id_base: u64) -> Vec<u8> {
+/// The output bytes of one chunk (rows `r`, `count` of them matching): its slice of the
+/// bitmap (chunks start on multiples of 64 rows, so slices concatenate), its row ids, or
+/// its projected records.
+fn chunk_records(
+    table: &Table,
+    params: &ScanParams,
+    masks: &[u64],
+    r: std::ops::Range<usize>,
+    id_base: u64,
+    count: u64,
+) -> Vec<u8> {
     match &params.output {
-        ScanOutput::Bitmap => Vec::new(),
+        ScanOutput::Bitmap => {
+            let mut out: Vec<u8> = masks.iter().flat_map(|m| m.to_le_bytes()).collect();
+            out.truncate(r.len().div_ceil(8));
+            out
+        }
         ScanOutput::RowIds => {
-            let base = id_base + start as u64;
+            let base = id_base + r.start as u64;
+            let width = if params.wide_ids { 8 } else { 4 };
+            let mut out = Vec::with_capacity(count as usize * width);
             if params.wide_ids {
-                let mut ids: Vec<u64> = Vec::new();
-                compact(masks, base, &mut ids);
-                ids.iter().flat_map(|i| i.to_le_bytes()).collect()
+                for_each_match(masks, |i| out.extend_from_slice(&(base + i).to_le_bytes()));
             } else {
-                let mut ids: Vec<u32> = Vec::new();
-                compact(masks, base, &mut ids);
-                ids.iter().flat_map(|i| i.to_le_bytes()).collect()
+                // The job chooses u32 ids only when every row id fits.
+                for_each_match(masks, |i| out.extend_from_slice(&((base + i) as u32).to_le_bytes()));
             }
+            out
         }
         ScanOutput::Project(cols) => {
-            let mut local: Vec<u32> = Vec::new();
-            compact(masks, start as u64, &mut local);
             let rec: usize = cols.iter().map(|&c| table.columns[c].ty.bits() as usize / 8).sum();
-            let mut out = Vec::with_capacity(local.len() * rec);
-            for &r in &local {
+            let mut out = Vec::with_capacity(count as usize * rec);
+            for_each_match(masks, |i| {
+                let row = r.start + i as usize;
                 for &c in cols {
-                    let r = r as usize;
-                    column_bytes(&table.columns[c], r..r + 1, &mut out);
+                    column_bytes(&table.columns[c], row..row + 1, &mut out);
                 }
-            }
+            });
             out
         }
     }
