@@ -78,7 +78,11 @@ fn golden_outputs(m: &Manifest) -> Vec<(String, &FileEntry)> {
         "npy" => 1,
         _ => 2,
     };
-    for f in m.files.iter().filter(|f| f.role == Some(Role::Golden) && f.format != "npy-typed") {
+    for f in m
+        .files
+        .iter()
+        .filter(|f| f.role == Some(Role::Golden) && f.format != "npy-typed")
+    {
         let name = f.path.rsplit('/').next().unwrap_or(&f.path);
         let stem = name.rsplit_once('.').map_or(name, |(s, _)| s).to_string();
         match out.iter_mut().find(|(s, _)| *s == stem) {
@@ -98,8 +102,12 @@ fn find_dump(dir: &Path, stem: &str) -> Option<PathBuf> {
 }
 
 fn file_stem(p: &Path) -> String {
-    let name = p.file_name().map(|n| n.to_string_lossy().to_string()).unwrap_or_default();
-    name.rsplit_once('.').map_or(name.clone(), |(s, _)| s.to_string())
+    let name = p
+        .file_name()
+        .map(|n| n.to_string_lossy().to_string())
+        .unwrap_or_default();
+    name.rsplit_once('.')
+        .map_or(name.clone(), |(s, _)| s.to_string())
 }
 
 /// Checks the device dumps at `device` (a directory, or one dump file) against `golden_dir`.
@@ -107,7 +115,10 @@ pub fn check(golden_dir: &Path, device: &Path, opts: CheckOptions) -> Result<Che
     let m = Manifest::load(golden_dir)?;
     let golden = golden_outputs(&m);
     if golden.is_empty() {
-        return Err(Error::input(format!("{}: the manifest lists no golden outputs", golden_dir.display())));
+        return Err(Error::input(format!(
+            "{}: the manifest lists no golden outputs",
+            golden_dir.display()
+        )));
     }
     let pairs: Vec<(String, &FileEntry, PathBuf)> = if device.is_dir() {
         golden
@@ -131,21 +142,31 @@ pub fn check(golden_dir: &Path, device: &Path, opts: CheckOptions) -> Result<Che
             Error::input(format!(
                 "{}: no golden output is named {stem} (golden outputs: {})",
                 device.display(),
-                golden.iter().map(|(s, _)| s.as_str()).collect::<Vec<_>>().join(", ")
+                golden
+                    .iter()
+                    .map(|(s, _)| s.as_str())
+                    .collect::<Vec<_>>()
+                    .join(", ")
             ))
         })?;
         vec![(stem, g.1, device.to_path_buf())]
     } else {
-        return Err(Error::input(format!("{}: no such file or directory", device.display())));
+        return Err(Error::input(format!(
+            "{}: no such file or directory",
+            device.display()
+        )));
     };
     let mut outputs = Vec::new();
     for (stem, g, dump_path) in pairs {
         let word_bits = g.word_bits.unwrap_or(m.word_bits);
         let gpath = golden_dir.join(&g.path);
-        let format = ImageFormat::from_path(&gpath).ok_or_else(|| Error::input(format!("{}: unknown image format", gpath.display())))?;
+        let format = ImageFormat::from_path(&gpath)
+            .ok_or_else(|| Error::input(format!("{}: unknown image format", gpath.display())))?;
         let gbytes = std::fs::read(&gpath).map_err(|e| Error::io(&gpath, e))?;
-        let gold = image::read_image(format, &gbytes, word_bits).map_err(|e| Error::input(format!("{}: {e}", gpath.display())))?;
-        let dump = image::read_dump(&dump_path, word_bits).map_err(|e| Error::input(e.to_string()))?;
+        let gold = image::read_image(format, &gbytes, word_bits)
+            .map_err(|e| Error::input(format!("{}: {e}", gpath.display())))?;
+        let dump =
+            image::read_dump(&dump_path, word_bits).map_err(|e| Error::input(e.to_string()))?;
         outputs.push(compare(&stem, g, &gold, &dump, &dump_path, opts));
     }
     Ok(CheckReport {
@@ -156,7 +177,11 @@ pub fn check(golden_dir: &Path, device: &Path, opts: CheckOptions) -> Result<Che
 }
 
 /// The bytes of `dump` at byte offset `off`, or why they cannot be read.
-fn dump_bytes<'a>(dump: &'a WordDump, off: u64, len: u64) -> std::result::Result<Vec<u8>, &'static str> {
+fn dump_bytes(
+    dump: &WordDump,
+    off: u64,
+    len: u64,
+) -> std::result::Result<Vec<u8>, &'static str> {
     let wb = dump.word_bytes as u64;
     let mut out = Vec::with_capacity(len as usize);
     for b in off..off + len {
@@ -186,7 +211,14 @@ fn render(bytes: &[u8], elem: &str) -> String {
     }
 }
 
-fn compare(stem: &str, g: &FileEntry, gold: &WordDump, dump: &WordDump, path: &Path, opts: CheckOptions) -> OutputCheck {
+fn compare(
+    stem: &str,
+    g: &FileEntry,
+    gold: &WordDump,
+    dump: &WordDump,
+    path: &Path,
+    opts: CheckOptions,
+) -> OutputCheck {
     let wb = gold.word_bytes as u64;
     let records = g.records.unwrap_or(0);
     let rec = g.record_bytes.unwrap_or(0);
@@ -208,12 +240,25 @@ fn compare(stem: &str, g: &FileEntry, gold: &WordDump, dump: &WordDump, path: &P
             if got != Ok(want) {
                 mismatches += 1;
                 let found = got.map(|b| b.to_string()).unwrap_or_else(|e| e.to_string());
-                note(Mismatch { record: r, word: byte / wb, byte_offset: byte, expected: want.to_string(), found }, &mut first);
+                note(
+                    Mismatch {
+                        record: r,
+                        word: byte / wb,
+                        byte_offset: byte,
+                        expected: want.to_string(),
+                        found,
+                    },
+                    &mut first,
+                );
             }
         }
     } else if opts.unordered && g.column.as_deref() != Some("count") {
-        let want: Vec<Vec<u8>> = (0..records).map(|r| gold.data[(r * rec) as usize..((r + 1) * rec) as usize].to_vec()).collect();
-        let got: Vec<std::result::Result<Vec<u8>, &str>> = (0..records).map(|r| dump_bytes(dump, r * rec, rec)).collect();
+        let want: Vec<Vec<u8>> = (0..records)
+            .map(|r| gold.data[(r * rec) as usize..((r + 1) * rec) as usize].to_vec())
+            .collect();
+        let got: Vec<std::result::Result<Vec<u8>, &str>> = (0..records)
+            .map(|r| dump_bytes(dump, r * rec, rec))
+            .collect();
         let mut w_sorted = want.clone();
         w_sorted.sort();
         let mut g_sorted: Vec<Vec<u8>> = got.iter().filter_map(|x| x.clone().ok()).collect();
@@ -235,7 +280,16 @@ fn compare(stem: &str, g: &FileEntry, gold: &WordDump, dump: &WordDump, path: &P
         mismatches = missing.len() as u64;
         for v in missing {
             let r = want.iter().position(|x| *x == v).unwrap_or(0) as u64;
-            note(Mismatch { record: r, word: r * rec / wb, byte_offset: r * rec, expected: render(&v, &elem), found: "not among the device's records".into() }, &mut first);
+            note(
+                Mismatch {
+                    record: r,
+                    word: r * rec / wb,
+                    byte_offset: r * rec,
+                    expected: render(&v, &elem),
+                    found: "not among the device's records".into(),
+                },
+                &mut first,
+            );
         }
     } else {
         for r in 0..records {
@@ -244,8 +298,19 @@ fn compare(stem: &str, g: &FileEntry, gold: &WordDump, dump: &WordDump, path: &P
             let got = dump_bytes(dump, off, rec);
             if got.as_deref() != Ok(want) {
                 mismatches += 1;
-                let found = got.map(|b| render(&b, &elem)).unwrap_or_else(|e| e.to_string());
-                note(Mismatch { record: r, word: off / wb, byte_offset: off, expected: render(want, &elem), found }, &mut first);
+                let found = got
+                    .map(|b| render(&b, &elem))
+                    .unwrap_or_else(|e| e.to_string());
+                note(
+                    Mismatch {
+                        record: r,
+                        word: off / wb,
+                        byte_offset: off,
+                        expected: render(want, &elem),
+                        found,
+                    },
+                    &mut first,
+                );
             }
         }
     }
@@ -265,11 +330,24 @@ impl CheckReport {
     pub fn to_text(&self) -> String {
         let mut s = String::new();
         for o in &self.outputs {
-            let part = o.partition.map(|p| format!("partition {p}")).unwrap_or_default();
-            let verdict = if o.mismatches == 0 { "match".to_string() } else { format!("{} of {} records differ", o.mismatches, o.records) };
-            s.push_str(&format!("{:<18} {:<12} {:>9} records  {verdict}", o.output, part, o.records));
+            let part = o
+                .partition
+                .map(|p| format!("partition {p}"))
+                .unwrap_or_default();
+            let verdict = if o.mismatches == 0 {
+                "match".to_string()
+            } else {
+                format!("{} of {} records differ", o.mismatches, o.records)
+            };
+            s.push_str(&format!(
+                "{:<18} {:<12} {:>9} records  {verdict}",
+                o.output, part, o.records
+            ));
             if o.ignored_words > 0 {
-                s.push_str(&format!("  ({} words past the golden output ignored)", o.ignored_words));
+                s.push_str(&format!(
+                    "  ({} words past the golden output ignored)",
+                    o.ignored_words
+                ));
             }
             s.push('\n');
             for m in &o.first_mismatches {
@@ -279,10 +357,17 @@ impl CheckReport {
                 ));
             }
             if o.mismatches as usize > o.first_mismatches.len() {
-                s.push_str(&format!("    … and {} more\n", o.mismatches as usize - o.first_mismatches.len()));
+                s.push_str(&format!(
+                    "    … and {} more\n",
+                    o.mismatches as usize - o.first_mismatches.len()
+                ));
             }
         }
-        s.push_str(if self.matched { "all outputs match\n" } else { "MISMATCH\n" });
+        s.push_str(if self.matched {
+            "all outputs match\n"
+        } else {
+            "MISMATCH\n"
+        });
         s
     }
 }

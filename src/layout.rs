@@ -69,7 +69,7 @@ impl Placement {
 
 /// Memory word width, validated: a multiple of 8 from 8 to 4096 bits.
 pub fn word_bytes(word_bits: u32) -> Result<u64> {
-    if word_bits % 8 != 0 || !(8..=4096).contains(&word_bits) {
+    if !word_bits.is_multiple_of(8) || !(8..=4096).contains(&word_bits) {
         return Err(Error::input(format!(
             "word width {word_bits} bits: must be a multiple of 8 from 8 to 4096"
         )));
@@ -79,7 +79,7 @@ pub fn word_bytes(word_bits: u32) -> Result<u64> {
 
 /// Checks that elements of `ty` tile a word of `word_bits` exactly.
 pub fn check_elem_fits_word(ty: ElemType, word_bits: u32, what: &str) -> Result<()> {
-    if word_bits % ty.bits() != 0 {
+    if !word_bits.is_multiple_of(ty.bits()) {
         return Err(Error::input(format!(
             "{what}: word width {word_bits} bits is not a multiple of the {ty} element width ({} bits)",
             ty.bits()
@@ -166,7 +166,7 @@ impl MemoryMap {
         if channels == 0 {
             return Err(Error::input("channels must be at least 1"));
         }
-        if channel_bytes % word_bytes != 0 {
+        if !channel_bytes.is_multiple_of(word_bytes) {
             return Err(Error::input(format!(
                 "channel size {channel_bytes} bytes is not a whole number of {word_bytes}-byte words"
             )));
@@ -259,12 +259,18 @@ mod tests {
         let mut m = MemoryMap::new(64, 1, 1024).unwrap();
         m.place("a", 0, 1000).unwrap();
         let e = m.place("t.p1.v", 0, 100).unwrap_err().to_string();
-        assert_eq!(e, "region `t.p1.v` (100 bytes) does not fit channel 0: 0 of 1024 bytes are free");
+        assert_eq!(
+            e,
+            "region `t.p1.v` (100 bytes) does not fit channel 0: 0 of 1024 bytes are free"
+        );
     }
 
     #[test]
     fn placements() {
-        assert_eq!(Placement::Spread.channels(5, 2).unwrap(), vec![0, 1, 0, 1, 0]);
+        assert_eq!(
+            Placement::Spread.channels(5, 2).unwrap(),
+            vec![0, 1, 0, 1, 0]
+        );
         assert_eq!(Placement::Packed.channels(3, 4).unwrap(), vec![0, 0, 0]);
         assert!(Placement::parse("0,7").unwrap().channels(2, 4).is_err());
         assert!(Placement::parse("0,1").unwrap().channels(3, 4).is_err());

@@ -322,7 +322,10 @@ impl Ledger {
             if f.len() != 8 {
                 return Err(bad("expected 8 fields"));
             }
-            let num = |s: &str| s.parse::<u64>().map_err(|_| bad(&format!("`{s}` is not a count")));
+            let num = |s: &str| {
+                s.parse::<u64>()
+                    .map_err(|_| bad(&format!("`{s}` is not a count")))
+            };
             let (pname, pidx) = match f[1].split_once('[') {
                 Some((n, rest)) => (n, Some(num(rest.trim_end_matches(']'))? as u32)),
                 None => (f[1], None),
@@ -335,7 +338,11 @@ impl Ledger {
                 engine: num(f[0])? as u32,
                 phase: Phase { name, index: pidx },
                 region: Region::parse(f[2]).ok_or_else(|| bad("unknown region"))?,
-                channel: if f[3].is_empty() { None } else { Some(num(f[3])? as u32) },
+                channel: if f[3].is_empty() {
+                    None
+                } else {
+                    Some(num(f[3])? as u32)
+                },
                 direction: match f[4] {
                     "read" => Direction::Read,
                     "write" => Direction::Write,
@@ -374,7 +381,14 @@ mod tests {
         for _ in 0..10 {
             c.touch(4, 1);
         }
-        assert_eq!(c.traffic, Traffic { bytes: 40, words: 1, rows: 10 });
+        assert_eq!(
+            c.traffic,
+            Traffic {
+                bytes: 40,
+                words: 1,
+                rows: 10
+            }
+        );
         c.touch(100, 25);
         assert_eq!(c.traffic.words, words_touched(0, 140, 64));
     }
@@ -385,12 +399,26 @@ mod tests {
         for b in [10u32, 2] {
             l.add(
                 Key::device(1, Phase::nth("probe", b), 3, Direction::Read),
-                Traffic { bytes: 5, words: 1, rows: 1 },
+                Traffic {
+                    bytes: 5,
+                    words: 1,
+                    rows: 1,
+                },
             );
         }
         l.add(
-            Key { engine: 0, phase: Phase::single("scan"), region: Region::OnChip, channel: None, direction: Direction::Write },
-            Traffic { bytes: 8, words: 1, rows: 0 },
+            Key {
+                engine: 0,
+                phase: Phase::single("scan"),
+                region: Region::OnChip,
+                channel: None,
+                direction: Direction::Write,
+            },
+            Traffic {
+                bytes: 8,
+                words: 1,
+                rows: 0,
+            },
         );
         let csv = l.to_csv();
         assert_eq!(

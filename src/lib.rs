@@ -15,8 +15,8 @@ pub mod layout;
 pub mod ledger;
 pub mod manifest;
 pub mod memmap;
-pub mod report;
 pub mod npy;
+pub mod report;
 pub mod table;
 
 pub use error::{Error, ErrorKind, Result};

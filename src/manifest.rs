@@ -146,7 +146,10 @@ impl Manifest {
                 Ok(b) => {
                     let h = crate::job::sha256_hex(&b);
                     if h != f.sha256 {
-                        bad.push((f.path.clone(), format!("sha256 {h}, manifest says {}", f.sha256)));
+                        bad.push((
+                            f.path.clone(),
+                            format!("sha256 {h}, manifest says {}", f.sha256),
+                        ));
                     }
                 }
                 Err(e) => bad.push((f.path.clone(), e.to_string())),

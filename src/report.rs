@@ -33,21 +33,43 @@ impl TextTable {
                 width[i] = width[i].max(c.chars().count());
             }
         }
-        let numeric = |s: &str| s.chars().next().is_some_and(|c| c.is_ascii_digit() || c == '-');
+        let numeric = |s: &str| {
+            s.chars()
+                .next()
+                .is_some_and(|c| c.is_ascii_digit() || c == '-')
+        };
         // A column whose first data cell is a number is right-aligned, header included.
         let right: Vec<bool> = (0..n)
-            .map(|i| self.rows.first().and_then(|r| r.get(i)).is_some_and(|c| numeric(c)))
+            .map(|i| {
+                self.rows
+                    .first()
+                    .and_then(|r| r.get(i))
+                    .is_some_and(|c| numeric(c))
+            })
             .collect();
         let line = |r: &[String]| {
             let cells: Vec<String> = r
                 .iter()
                 .enumerate()
-                .map(|(i, c)| if right[i] { format!("{c:>w$}", w = width[i]) } else { format!("{c:<w$}", w = width[i]) })
+                .map(|(i, c)| {
+                    if right[i] {
+                        format!("{c:>w$}", w = width[i])
+                    } else {
+                        format!("{c:<w$}", w = width[i])
+                    }
+                })
                 .collect();
             cells.join("  ").trim_end().to_string() + "\n"
         };
         let mut s = line(&self.header);
-        s.push_str(&(width.iter().map(|w| "-".repeat(*w)).collect::<Vec<_>>().join("  ") + "\n"));
+        s.push_str(
+            &(width
+                .iter()
+                .map(|w| "-".repeat(*w))
+                .collect::<Vec<_>>()
+                .join("  ")
+                + "\n"),
+        );
         for r in &self.rows {
             s.push_str(&line(r));
         }
@@ -72,7 +94,15 @@ pub fn human_bytes(b: u64) -> String {
 }
 
 fn totals_table(first: &str, rows: Vec<(String, Totals)>) -> String {
-    let mut t = TextTable::new(&[first, "read", "read words", "rows in", "written", "write words", "rows out"]);
+    let mut t = TextTable::new(&[
+        first,
+        "read",
+        "read words",
+        "rows in",
+        "written",
+        "write words",
+        "rows out",
+    ]);
     for (label, x) in rows {
         t.row(vec![
             label,
@@ -90,7 +120,11 @@ fn totals_table(first: &str, rows: Vec<(String, Totals)>) -> String {
 /// The ledger as three tables: per engine, per channel (device memory, with other regions
 /// named), and per phase.
 pub fn ledger_report(ledger: &Ledger) -> String {
-    let engines = ledger.totals_by(|k| k.engine).into_iter().map(|(e, t)| (format!("engine {e}"), t)).collect();
+    let engines = ledger
+        .totals_by(|k| k.engine)
+        .into_iter()
+        .map(|(e, t)| (format!("engine {e}"), t))
+        .collect();
     let channels = ledger
         .totals_by(|k| (k.region, k.channel))
         .into_iter()
@@ -102,7 +136,11 @@ pub fn ledger_report(ledger: &Ledger) -> String {
             (label, t)
         })
         .collect();
-    let phases = ledger.totals_by(|k| k.phase).into_iter().map(|(p, t)| (p.to_string(), t)).collect();
+    let phases = ledger
+        .totals_by(|k| k.phase)
+        .into_iter()
+        .map(|(p, t)| (p.to_string(), t))
+        .collect();
     format!(
         "{}\n{}\n{}",
         totals_table("engine", engines),
@@ -127,9 +165,30 @@ mod tests {
     fn ledger_report_is_pinned() {
         let mut l = Ledger::new();
         let ph = Phase::single("scan");
-        l.add(Key::device(0, ph, 0, Direction::Read), Traffic { bytes: 4096, words: 64, rows: 1024 });
-        l.add(Key::device(0, ph, 0, Direction::Write), Traffic { bytes: 60, words: 2, rows: 13 });
-        l.add(Key::device(1, ph, 1, Direction::Read), Traffic { bytes: 4000, words: 63, rows: 1000 });
+        l.add(
+            Key::device(0, ph, 0, Direction::Read),
+            Traffic {
+                bytes: 4096,
+                words: 64,
+                rows: 1024,
+            },
+        );
+        l.add(
+            Key::device(0, ph, 0, Direction::Write),
+            Traffic {
+                bytes: 60,
+                words: 2,
+                rows: 13,
+            },
+        );
+        l.add(
+            Key::device(1, ph, 1, Direction::Read),
+            Traffic {
+                bytes: 4000,
+                words: 63,
+                rows: 1000,
+            },
+        );
         let r = ledger_report(&l);
         let first: Vec<&str> = r.lines().take(4).collect();
         assert_eq!(

@@ -23,7 +23,11 @@ fn assert_bad(o: &util::Output, needle: &str, out: &std::path::Path) {
     assert_eq!(o.code, 2, "stdout: {}\nstderr: {}", o.stdout, o.stderr);
     let first = o.stderr.lines().next().unwrap_or("");
     assert!(first.starts_with("weir: error: "), "{}", o.stderr);
-    assert!(o.stderr.contains(needle), "expected `{needle}` in: {}", o.stderr);
+    assert!(
+        o.stderr.contains(needle),
+        "expected `{needle}` in: {}",
+        o.stderr
+    );
     assert!(!o.stderr.contains("panicked"), "{}", o.stderr);
     assert!(!out.exists(), "{} was created", out.display());
 }
@@ -34,8 +38,24 @@ fn run_writes_a_complete_directory_that_inspect_verifies() {
     let out = t.join("out");
     let o = weir(&["run", TB_JOB, "--out", out.to_str().unwrap()]);
     assert_eq!(o.code, 0, "{}", o.stderr);
-    assert!(o.stdout.contains("selectivity: requested 5.0000%"), "{}", o.stdout);
-    for f in ["manifest.json", "timing.json", "ledger.json", "ledger.csv", "memory_map.vh", "memory_map.json", "input/ch0.hex", "input/readings.p0.v.hex", "golden/scan.p0.out.hex", "golden/scan.p3.count.bin", "arrays/scan.p1.out.npy"] {
+    assert!(
+        o.stdout.contains("selectivity: requested 5.0000%"),
+        "{}",
+        o.stdout
+    );
+    for f in [
+        "manifest.json",
+        "timing.json",
+        "ledger.json",
+        "ledger.csv",
+        "memory_map.vh",
+        "memory_map.json",
+        "input/ch0.hex",
+        "input/readings.p0.v.hex",
+        "golden/scan.p0.out.hex",
+        "golden/scan.p3.count.bin",
+        "arrays/scan.p1.out.npy",
+    ] {
         assert!(out.join(f).is_file(), "missing {f}");
     }
     let i = weir(&["inspect", out.to_str().unwrap()]);
@@ -48,7 +68,11 @@ fn run_writes_a_complete_directory_that_inspect_verifies() {
     std::fs::write(&p, text).unwrap();
     let i = weir(&["inspect", out.to_str().unwrap()]);
     assert_eq!(i.code, 1, "{}", i.stdout);
-    assert!(i.stdout.contains("CHANGED golden/scan.p0.out.hex"), "{}", i.stdout);
+    assert!(
+        i.stdout.contains("CHANGED golden/scan.p0.out.hex"),
+        "{}",
+        i.stdout
+    );
 }
 
 #[test]
@@ -56,10 +80,21 @@ fn output_is_identical_for_any_thread_count_and_seeds_make_subdirectories() {
     let t = TempDir::new("threads");
     let (a, b) = (t.join("a"), t.join("b"));
     for (dir, n) in [(&a, "1"), (&b, "2")] {
-        let o = weir(&["run", "data/jobs/demo.toml", "--out", dir.to_str().unwrap(), "--threads", n]);
+        let o = weir(&[
+            "run",
+            "data/jobs/demo.toml",
+            "--out",
+            dir.to_str().unwrap(),
+            "--threads",
+            n,
+        ]);
         assert_eq!(o.code, 0, "{}", o.stderr);
     }
-    let strip = |v: Vec<(String, Vec<u8>)>| v.into_iter().filter(|(p, _)| p != "timing.json").collect::<Vec<_>>();
+    let strip = |v: Vec<(String, Vec<u8>)>| {
+        v.into_iter()
+            .filter(|(p, _)| p != "timing.json")
+            .collect::<Vec<_>>()
+    };
     let (ta, tb) = (strip(tree(&a)), strip(tree(&b)));
     assert_eq!(ta.len(), tb.len());
     for ((pa, da), (pb, db)) in ta.iter().zip(&tb) {
@@ -67,7 +102,14 @@ fn output_is_identical_for_any_thread_count_and_seeds_make_subdirectories() {
         assert!(da == db, "{pa} differs between 1 and 2 threads");
     }
     let s = t.join("seeds");
-    let o = weir(&["run", TB_JOB, "--out", s.to_str().unwrap(), "--seeds", "3..5"]);
+    let o = weir(&[
+        "run",
+        TB_JOB,
+        "--out",
+        s.to_str().unwrap(),
+        "--seeds",
+        "3..5",
+    ]);
     assert_eq!(o.code, 0, "{}", o.stderr);
     assert!(s.join("seed-3/manifest.json").is_file() && s.join("seed-4/manifest.json").is_file());
     assert!(!s.join("seed-5").exists());
@@ -85,7 +127,10 @@ fn refuses_a_non_empty_output_directory_without_force() {
     let o = weir(&["run", TB_JOB, "--out", out.to_str().unwrap()]);
     assert_eq!(o.code, 2);
     assert!(o.stderr.contains("--force"), "{}", o.stderr);
-    assert_eq!(std::fs::read_to_string(out.join("keep.txt")).unwrap(), "precious");
+    assert_eq!(
+        std::fs::read_to_string(out.join("keep.txt")).unwrap(),
+        "precious"
+    );
     let o = weir(&["run", TB_JOB, "--out", out.to_str().unwrap(), "--force"]);
     assert_eq!(o.code, 0, "{}", o.stderr);
     assert!(!out.join("keep.txt").exists() && out.join("manifest.json").exists());
@@ -95,7 +140,10 @@ fn refuses_a_non_empty_output_directory_without_force() {
 fn check_reports_matches_mismatches_and_ignored_words() {
     let t = TempDir::new("check");
     let gold = t.join("gold");
-    assert_eq!(weir(&["run", TB_JOB, "--out", gold.to_str().unwrap()]).code, 0);
+    assert_eq!(
+        weir(&["run", TB_JOB, "--out", gold.to_str().unwrap()]).code,
+        0
+    );
     let dev = t.join("dev");
     std::fs::create_dir_all(&dev).unwrap();
     for p in 0..4 {
@@ -108,7 +156,11 @@ fn check_reports_matches_mismatches_and_ignored_words() {
     std::fs::write(dev.join("scan.p1.out.hex"), extra).unwrap();
     let o = weir(&["check", gold.to_str().unwrap(), dev.to_str().unwrap()]);
     assert_eq!(o.code, 0, "{}{}", o.stdout, o.stderr);
-    assert!(o.stdout.contains("1 words past the golden output ignored"), "{}", o.stdout);
+    assert!(
+        o.stdout.contains("1 words past the golden output ignored"),
+        "{}",
+        o.stdout
+    );
 
     // Change the third row id of partition 0 (lane 2 of word 0): record 2, byte 8.
     let p0 = dev.join("scan.p0.out.hex");
@@ -121,8 +173,20 @@ fn check_reports_matches_mismatches_and_ignored_words() {
     std::fs::write(&p0, lines.join("\n") + "\n").unwrap();
     let o = weir(&["check", gold.to_str().unwrap(), dev.to_str().unwrap()]);
     assert_eq!(o.code, 1, "{}", o.stdout);
-    assert!(o.stdout.contains(&format!("record 2 (word 0, byte 8): expected {old}, found {}", old + 1)), "{}", o.stdout);
-    let j = weir(&["check", gold.to_str().unwrap(), dev.to_str().unwrap(), "--json"]);
+    assert!(
+        o.stdout.contains(&format!(
+            "record 2 (word 0, byte 8): expected {old}, found {}",
+            old + 1
+        )),
+        "{}",
+        o.stdout
+    );
+    let j = weir(&[
+        "check",
+        gold.to_str().unwrap(),
+        dev.to_str().unwrap(),
+        "--json",
+    ]);
     assert_eq!(j.code, 1);
     let v: serde_json::Value = serde_json::from_str(&j.stdout).unwrap();
     assert_eq!(v["matched"], false);
@@ -137,18 +201,37 @@ fn check_reports_matches_mismatches_and_ignored_words() {
     std::fs::write(&p0, "").unwrap();
     let o = weir(&["check", gold.to_str().unwrap(), p0.to_str().unwrap()]);
     assert_eq!(o.code, 1);
-    assert!(o.stdout.contains("record 0 (word 0, byte 0)") && o.stdout.contains("found missing"), "{}", o.stdout);
+    assert!(
+        o.stdout.contains("record 0 (word 0, byte 0)") && o.stdout.contains("found missing"),
+        "{}",
+        o.stdout
+    );
 }
 
 #[test]
 fn unordered_check_accepts_a_permutation() {
     let t = TempDir::new("unordered");
     let gold = t.join("gold");
-    assert_eq!(weir(&["run", TB_JOB, "--out", gold.to_str().unwrap()]).code, 0);
+    assert_eq!(
+        weir(&["run", TB_JOB, "--out", gold.to_str().unwrap()]).code,
+        0
+    );
     let bin = std::fs::read(gold.join("golden/scan.p3.out.bin")).unwrap();
-    let m: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(gold.join("manifest.json")).unwrap()).unwrap();
-    let count = m["files"].as_array().unwrap().iter().find(|f| f["path"] == "golden/scan.p3.out.bin").unwrap()["records"].as_u64().unwrap() as usize;
-    let mut ids: Vec<[u8; 4]> = bin[..count * 4].chunks(4).map(|c| c.try_into().unwrap()).collect();
+    let m: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(gold.join("manifest.json")).unwrap())
+            .unwrap();
+    let count = m["files"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|f| f["path"] == "golden/scan.p3.out.bin")
+        .unwrap()["records"]
+        .as_u64()
+        .unwrap() as usize;
+    let mut ids: Vec<[u8; 4]> = bin[..count * 4]
+        .chunks(4)
+        .map(|c| c.try_into().unwrap())
+        .collect();
     ids.reverse();
     let mut shuffled: Vec<u8> = ids.concat();
     shuffled.resize(bin.len(), 0);
@@ -156,7 +239,12 @@ fn unordered_check_accepts_a_permutation() {
     std::fs::write(&dump, &shuffled).unwrap();
     let o = weir(&["check", gold.to_str().unwrap(), dump.to_str().unwrap()]);
     assert_eq!(o.code, 1, "a reversed output must not match in order");
-    let o = weir(&["check", gold.to_str().unwrap(), dump.to_str().unwrap(), "--unordered"]);
+    let o = weir(&[
+        "check",
+        gold.to_str().unwrap(),
+        dump.to_str().unwrap(),
+        "--unordered",
+    ]);
     assert_eq!(o.code, 0, "{}", o.stdout);
 }
 
@@ -164,17 +252,28 @@ fn unordered_check_accepts_a_permutation() {
 fn check_bad_input_is_exit_2() {
     let t = TempDir::new("check-bad");
     let gold = t.join("gold");
-    assert_eq!(weir(&["run", TB_JOB, "--out", gold.to_str().unwrap()]).code, 0);
+    assert_eq!(
+        weir(&["run", TB_JOB, "--out", gold.to_str().unwrap()]).code,
+        0
+    );
     let wide = t.write("scan.p0.out.hex", &format!("{}\n", "1".repeat(129)));
     let o = weir(&["check", gold.to_str().unwrap(), wide.to_str().unwrap()]);
     assert_eq!(o.code, 2, "{}", o.stdout);
-    assert!(o.stderr.contains("line 1") && o.stderr.contains("wider than a 512-bit word"), "{}", o.stderr);
+    assert!(
+        o.stderr.contains("line 1") && o.stderr.contains("wider than a 512-bit word"),
+        "{}",
+        o.stderr
+    );
     let short = t.join("scan.p0.out.bin");
     std::fs::write(&short, [0u8; 100]).unwrap();
     let o = weir(&["check", gold.to_str().unwrap(), short.to_str().unwrap()]);
     assert_eq!(o.code, 2);
     assert!(o.stderr.contains("100 bytes"), "{}", o.stderr);
-    let o = weir(&["check", gold.to_str().unwrap(), t.join("nothing-here").to_str().unwrap()]);
+    let o = weir(&[
+        "check",
+        gold.to_str().unwrap(),
+        t.join("nothing-here").to_str().unwrap(),
+    ]);
     assert_eq!(o.code, 2);
     let o = weir(&["check", t.0.to_str().unwrap(), wide.to_str().unwrap()]);
     assert_eq!(o.code, 2);
@@ -188,14 +287,42 @@ fn bad_jobs_fail_cleanly_and_write_nothing() {
     let t = TempDir::new("bad-jobs");
     let out = t.join("out");
     let cases: Vec<(&str, String, &str)> = vec![
-        ("word-not-8", small_job("word_bits = 500", "v < 3"), "word width 500 bits"),
-        ("word-not-elem", small_job("word_bits = 24", "v < 3"), "not a multiple of the u32 element width"),
-        ("zero-parts", small_job("partitions = 0", "v < 3").replace("partitions = 3\n", ""), "partitions must be at least 1"),
-        ("too-big", small_job("channel_mib = 0", "v < 3"), "does not fit channel 0"),
-        ("typo", small_job("word_bit = 64", "v < 3"), "unknown field `word_bit`"),
-        ("unknown-col", small_job("", "speed < 3"), "unknown column `speed`"),
+        (
+            "word-not-8",
+            small_job("word_bits = 500", "v < 3"),
+            "word width 500 bits",
+        ),
+        (
+            "word-not-elem",
+            small_job("word_bits = 24", "v < 3"),
+            "not a multiple of the u32 element width",
+        ),
+        (
+            "zero-parts",
+            small_job("partitions = 0", "v < 3").replace("partitions = 3\n", ""),
+            "partitions must be at least 1",
+        ),
+        (
+            "too-big",
+            small_job("channel_mib = 0", "v < 3"),
+            "does not fit channel 0",
+        ),
+        (
+            "typo",
+            small_job("word_bit = 64", "v < 3"),
+            "unknown field `word_bit`",
+        ),
+        (
+            "unknown-col",
+            small_job("", "speed < 3"),
+            "unknown column `speed`",
+        ),
         ("syntax", small_job("", "v < < 3"), "column 5"),
-        ("range", small_job("", "w > 40000"), "out of range for i16 column `w`"),
+        (
+            "range",
+            small_job("", "w > 40000"),
+            "out of range for i16 column `w`",
+        ),
         ("mismatch", small_job("", "v = 'abc'"), "column `v`"),
     ];
     for (name, text, needle) in cases {
@@ -213,11 +340,25 @@ fn bad_jobs_fail_cleanly_and_write_nothing() {
 fn bad_input_files_fail_cleanly() {
     let t = TempDir::new("bad-files");
     let out = t.join("out");
-    let csv_job = |file: &str| format!("[input]\ntable = \"t\"\ncsv = \"{file}\"\n[kernel]\nname = \"scan\"\npredicate = \"a < 3\"\n");
+    let csv_job = |file: &str| {
+        format!("[input]\ntable = \"t\"\ncsv = \"{file}\"\n[kernel]\nname = \"scan\"\npredicate = \"a < 3\"\n")
+    };
     let cases = [
-        ("ragged.csv", "a:u8,b:u8\n1,2\n3\n", "ragged.csv, line 3: 1 fields, the header has 2"),
-        ("nonnum.csv", "a:u8,b:u8\n1,zz\n", "nonnum.csv, line 2: column `b`: `zz` is not a u8 number"),
-        ("range.csv", "a:u8,b:u8\n1,2\n300,1\n", "range.csv, line 3: column `a`: value 300 is out of range for u8"),
+        (
+            "ragged.csv",
+            "a:u8,b:u8\n1,2\n3\n",
+            "ragged.csv, line 3: 1 fields, the header has 2",
+        ),
+        (
+            "nonnum.csv",
+            "a:u8,b:u8\n1,zz\n",
+            "nonnum.csv, line 2: column `b`: `zz` is not a u8 number",
+        ),
+        (
+            "range.csv",
+            "a:u8,b:u8\n1,2\n300,1\n",
+            "range.csv, line 3: column `a`: value 300 is out of range for u8",
+        ),
     ];
     for (file, text, needle) in cases {
         t.write(file, text);
@@ -226,13 +367,21 @@ fn bad_input_files_fail_cleanly() {
         assert_bad(&o, needle, &out);
     }
     // Column files: a truncated .npy and a .bin whose size is not a whole number of values.
-    let col_job = |file: &str| format!("[input]\ntable = \"t\"\n[[input.columns]]\nname = \"a\"\ntype = \"u32\"\nfile = \"{file}\"\n[kernel]\nname = \"scan\"\npredicate = \"a < 3\"\n");
+    let col_job = |file: &str| {
+        format!("[input]\ntable = \"t\"\n[[input.columns]]\nname = \"a\"\ntype = \"u32\"\nfile = \"{file}\"\n[kernel]\nname = \"scan\"\npredicate = \"a < 3\"\n")
+    };
     let mut npy = Vec::new();
     weir::npy::write_npy(&mut npy, "<u4", &[10], &[7u8; 40]).unwrap();
     npy.truncate(npy.len() - 3);
     std::fs::write(t.join("short.npy"), &npy).unwrap();
     std::fs::write(t.join("odd.bin"), [1u8; 10]).unwrap();
-    for (file, needle) in [("short.npy", "short.npy: truncated"), ("odd.bin", "odd.bin: 10 bytes is not a whole number of u32 values")] {
+    for (file, needle) in [
+        ("short.npy", "short.npy: truncated"),
+        (
+            "odd.bin",
+            "odd.bin: 10 bytes is not a whole number of u32 values",
+        ),
+    ] {
         let job = t.write(&format!("{file}.toml"), &col_job(file));
         let o = weir(&["run", job.to_str().unwrap(), "--out", out.to_str().unwrap()]);
         assert_bad(&o, needle, &out);
@@ -243,10 +392,30 @@ fn bad_input_files_fail_cleanly() {
 fn gen_scan_reports_requested_and_achieved_selectivity() {
     let t = TempDir::new("gen");
     let f = t.join("v.npy");
-    let o = weir_in(&t.0, &["gen", "scan", "--rows", "100000", "--selectivity", "0.02", "--out", "v.npy"]);
+    let o = weir_in(
+        &t.0,
+        &[
+            "gen",
+            "scan",
+            "--rows",
+            "100000",
+            "--selectivity",
+            "0.02",
+            "--out",
+            "v.npy",
+        ],
+    );
     assert_eq!(o.code, 0, "{}", o.stderr);
     assert!(o.stdout.contains("requested 2.0000%"), "{}", o.stdout);
-    let achieved: f64 = o.stdout.rsplit("achieved ").next().unwrap().trim().trim_end_matches('%').parse().unwrap();
+    let achieved: f64 = o
+        .stdout
+        .rsplit("achieved ")
+        .next()
+        .unwrap()
+        .trim()
+        .trim_end_matches('%')
+        .parse()
+        .unwrap();
     assert!((achieved - 2.0).abs() < 0.2, "{achieved}");
     let col = weir::table::read_npy_column(&f, "v", None).unwrap();
     assert_eq!(col.len(), 100_000);

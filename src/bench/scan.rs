@@ -114,7 +114,10 @@ pub fn bench_scan(
             count_base: 0,
         };
         for &t in &p.threads {
-            let pool = rayon::ThreadPoolBuilder::new().num_threads(t).build().expect("thread pool");
+            let pool = rayon::ThreadPoolBuilder::new()
+                .num_threads(t)
+                .build()
+                .expect("thread pool");
             let mut matches = 0;
             let times = pool.install(|| {
                 time_runs(1, p.runs, || {
@@ -149,7 +152,18 @@ pub fn to_csv(points: &[ScanPoint]) -> String {
     for p in points {
         s.push_str(&format!(
             "{},{},{},{},{},{:.6},{:.6},{:.6},{:.3},{:.3},{:.3},{}\n",
-            p.threads, p.selectivity, p.matches, p.bytes, p.time.runs, p.time.median_s, p.time.min_s, p.time.max_s, p.gbps, p.read_gbps, p.fraction_of_read, p.isa
+            p.threads,
+            p.selectivity,
+            p.matches,
+            p.bytes,
+            p.time.runs,
+            p.time.median_s,
+            p.time.min_s,
+            p.time.max_s,
+            p.gbps,
+            p.read_gbps,
+            p.fraction_of_read,
+            p.isa
         ));
     }
     s

@@ -18,9 +18,11 @@ fn parse_bytes(s: &str) -> Result<u64> {
         Some('G' | 'g') => (&t[..t.len() - 1], 1 << 30),
         _ => (t, 1),
     };
-    num.parse::<u64>()
-        .map(|n| n * mult)
-        .map_err(|_| Error::input(format!("--bytes `{s}`: expected a number with an optional K, M or G suffix")))
+    num.parse::<u64>().map(|n| n * mult).map_err(|_| {
+        Error::input(format!(
+            "--bytes `{s}`: expected a number with an optional K, M or G suffix"
+        ))
+    })
 }
 
 fn all_threads() -> usize {
@@ -41,7 +43,12 @@ fn run_calibration(params: &CalibrationParams) -> Result<Calibration> {
 fn calibration_table(cal: &Calibration) -> String {
     let mut t = TextTable::new(&["threads", "read GB/s", "write GB/s", "copy GB/s"]);
     for p in &cal.points {
-        t.row(vec![p.threads.to_string(), format!("{:.2}", p.read_gbps), format!("{:.2}", p.write_gbps), format!("{:.2}", p.copy_gbps)]);
+        t.row(vec![
+            p.threads.to_string(),
+            format!("{:.2}", p.read_gbps),
+            format!("{:.2}", p.write_gbps),
+            format!("{:.2}", p.copy_gbps),
+        ]);
     }
     t.render()
 }
@@ -50,12 +57,25 @@ fn calibration_table(cal: &Calibration) -> String {
 pub fn calibrate(a: CalibrateArgs) -> Result<Outcome> {
     if let Some(out) = &a.out {
         if out.exists() && !a.force {
-            return Err(Error::exists(format!("{} exists; add --force to replace it", out.display())));
+            return Err(Error::exists(format!(
+                "{} exists; add --force to replace it",
+                out.display()
+            )));
         }
     }
-    let params = CalibrationParams { max_threads: a.threads.unwrap_or_else(all_threads), bytes: parse_bytes(&a.bytes)?, runs: a.runs };
+    let params = CalibrationParams {
+        max_threads: a.threads.unwrap_or_else(all_threads),
+        bytes: parse_bytes(&a.bytes)?,
+        runs: a.runs,
+    };
     let cal = run_calibration(&params)?;
-    println!("streaming bandwidth over {} MiB buffers, best of {} runs ({}; {})", cal.bytes >> 20, cal.runs, cal.isa, cal.cpu);
+    println!(
+        "streaming bandwidth over {} MiB buffers, best of {} runs ({}; {})",
+        cal.bytes >> 20,
+        cal.runs,
+        cal.isa,
+        cal.cpu
+    );
     print!("{}", calibration_table(&cal));
     if let Some(out) = &a.out {
         let text = cal.to_json().map_err(|e| Error::input(e.to_string()))?;
@@ -75,31 +95,59 @@ pub fn bench(a: BenchArgs) -> Result<Outcome> {
 fn bench_scan(a: BenchScanArgs) -> Result<Outcome> {
     let threads = a.threads.clone().unwrap_or_else(|| {
         let n = all_threads();
-        if n > 1 { vec![1, n] } else { vec![1] }
+        if n > 1 {
+            vec![1, n]
+        } else {
+            vec![1]
+        }
     });
     if threads.contains(&0) || a.runs == 0 || a.rows == 0 {
-        return Err(Error::input("--threads, --runs and --rows must be at least 1"));
+        return Err(Error::input(
+            "--threads, --runs and --rows must be at least 1",
+        ));
     }
     if let Some(s) = a.selectivity.iter().find(|s| !(0.0..=1.0).contains(*s)) {
-        return Err(Error::input(format!("--selectivity {s}: must be within 0..=1")));
+        return Err(Error::input(format!(
+            "--selectivity {s}: must be within 0..=1"
+        )));
     }
-    let outputs: Vec<std::path::PathBuf> = a.out.iter().flat_map(|p| [p.with_extension("csv"), p.with_extension("json")]).collect();
+    let outputs: Vec<std::path::PathBuf> = a
+        .out
+        .iter()
+        .flat_map(|p| [p.with_extension("csv"), p.with_extension("json")])
+        .collect();
     if let Some(p) = outputs.iter().find(|p| p.exists() && !a.force) {
-        return Err(Error::exists(format!("{} exists; add --force to replace it", p.display())));
+        return Err(Error::exists(format!(
+            "{} exists; add --force to replace it",
+            p.display()
+        )));
     }
     let cal = match &a.calibration {
         Some(path) => {
             let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
-            Calibration::from_json(&text).map_err(|e| Error::input(format!("{}: {e}", path.display())))?
+            Calibration::from_json(&text)
+                .map_err(|e| Error::input(format!("{}: {e}", path.display())))?
         }
         None => {
             let max = threads.iter().copied().max().unwrap_or(1);
             eprintln!("no --calibration given: measuring read bandwidth now (256 MiB, 3 runs)");
-            run_calibration(&CalibrationParams { max_threads: max, bytes: 256 << 20, runs: 3 })?
+            run_calibration(&CalibrationParams {
+                max_threads: max,
+                bytes: 256 << 20,
+                runs: 3,
+            })?
         }
     };
-    let params = ScanBenchParams { rows: a.rows, threads, selectivities: a.selectivity.clone(), runs: a.runs };
-    let pb = super::progress((params.threads.len() * params.selectivities.len()) as u64, "scan bench");
+    let params = ScanBenchParams {
+        rows: a.rows,
+        threads,
+        selectivities: a.selectivity.clone(),
+        runs: a.runs,
+    };
+    let pb = super::progress(
+        (params.threads.len() * params.selectivities.len()) as u64,
+        "scan bench",
+    );
     let mut save_err = None;
     let points = scan_bench::bench_scan(
         &params,
@@ -107,7 +155,14 @@ fn bench_scan(a: BenchScanArgs) -> Result<Outcome> {
         &mut |done, _| pb.set_position(done as u64),
         &mut |s, table| {
             if let Some(p) = &a.save_npy {
-                let path = if params.selectivities.len() > 1 { p.with_file_name(format!("{}-{s}.npy", p.file_stem().unwrap_or_default().to_string_lossy())) } else { p.clone() };
+                let path = if params.selectivities.len() > 1 {
+                    p.with_file_name(format!(
+                        "{}-{s}.npy",
+                        p.file_stem().unwrap_or_default().to_string_lossy()
+                    ))
+                } else {
+                    p.clone()
+                };
                 let mut bytes = Vec::new();
                 let r = weir::table::write_npy_column(&mut bytes, &table.columns[0])
                     .map_err(|e| Error::io(&path, e))
@@ -125,12 +180,23 @@ fn bench_scan(a: BenchScanArgs) -> Result<Outcome> {
     println!(
         "scan of {} u32 rows ({} MiB), predicate v >= {} and v < {}, row-id output, {} runs after a warm-up",
         a.rows,
-        a.rows * 4 >> 20,
+        (a.rows * 4) >> 20,
         scan_bench::LO,
         scan_bench::HI,
         a.runs
     );
-    let mut t = TextTable::new(&["threads", "selectivity", "matches", "median ms", "min ms", "max ms", "GB/s", "read GB/s", "of read", "isa"]);
+    let mut t = TextTable::new(&[
+        "threads",
+        "selectivity",
+        "matches",
+        "median ms",
+        "min ms",
+        "max ms",
+        "GB/s",
+        "read GB/s",
+        "of read",
+        "isa",
+    ]);
     for p in &points {
         t.row(vec![
             p.threads.to_string(),
@@ -147,11 +213,19 @@ fn bench_scan(a: BenchScanArgs) -> Result<Outcome> {
     }
     print!("{}", t.render());
     if let Some(prefix) = &a.out {
-        write_file_atomic(&prefix.with_extension("csv"), scan_bench::to_csv(&points).as_bytes(), a.force)?;
+        write_file_atomic(
+            &prefix.with_extension("csv"),
+            scan_bench::to_csv(&points).as_bytes(),
+            a.force,
+        )?;
         let json = serde_json::json!({ "bench": "scan", "rows": a.rows, "calibration": cal, "points": points });
         let text = serde_json::to_string_pretty(&json).expect("json") + "\n";
         write_file_atomic(&prefix.with_extension("json"), text.as_bytes(), a.force)?;
-        println!("saved {} and {}", prefix.with_extension("csv").display(), prefix.with_extension("json").display());
+        println!(
+            "saved {} and {}",
+            prefix.with_extension("csv").display(),
+            prefix.with_extension("json").display()
+        );
     }
     Ok(Outcome::Ok)
 }

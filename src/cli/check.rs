@@ -11,8 +11,16 @@ use super::Outcome;
 /// `weir inspect`: the manifest as a table, then every checksum verified.
 pub fn inspect(a: InspectArgs) -> Result<Outcome> {
     let m = Manifest::load(&a.dir)?;
-    println!("{}: manifest format {}, written by weir {}, {}-bit words", a.dir.display(), m.format_version, m.tool_version, m.word_bits);
-    let mut t = TextTable::new(&["path", "role", "part", "ch", "base", "rows", "elem", "words", "size", "sha256"]);
+    println!(
+        "{}: manifest format {}, written by weir {}, {}-bit words",
+        a.dir.display(),
+        m.format_version,
+        m.tool_version,
+        m.word_bits
+    );
+    let mut t = TextTable::new(&[
+        "path", "role", "part", "ch", "base", "rows", "elem", "words", "size", "sha256",
+    ]);
     let opt = |v: Option<u64>| v.map(|x| x.to_string()).unwrap_or_default();
     for f in &m.files {
         t.row(vec![
@@ -21,7 +29,9 @@ pub fn inspect(a: InspectArgs) -> Result<Outcome> {
             opt(f.partition.map(u64::from)),
             opt(f.channel.map(u64::from)),
             f.base.map(|b| format!("0x{b:x}")).unwrap_or_default(),
-            f.rows.map(|r| format!("{}..{}", r[0], r[1])).unwrap_or_default(),
+            f.rows
+                .map(|r| format!("{}..{}", r[0], r[1]))
+                .unwrap_or_default(),
             f.elem.clone().unwrap_or_default(),
             opt(f.words),
             human_bytes(f.bytes),
@@ -37,18 +47,35 @@ pub fn inspect(a: InspectArgs) -> Result<Outcome> {
         for (p, why) in &bad {
             println!("CHANGED {p}: {why}");
         }
-        println!("{} of {} files differ from the manifest", bad.len(), m.files.len());
+        println!(
+            "{} of {} files differ from the manifest",
+            bad.len(),
+            m.files.len()
+        );
         Ok(Outcome::Mismatch)
     }
 }
 
 /// `weir check`.
 pub fn check(a: CheckArgs) -> Result<Outcome> {
-    let report = check::check(&a.golden, &a.device, CheckOptions { unordered: a.unordered })?;
+    let report = check::check(
+        &a.golden,
+        &a.device,
+        CheckOptions {
+            unordered: a.unordered,
+        },
+    )?;
     if a.json {
-        println!("{}", serde_json::to_string_pretty(&report).expect("report serializes"));
+        println!(
+            "{}",
+            serde_json::to_string_pretty(&report).expect("report serializes")
+        );
     } else {
         print!("{}", report.to_text());
     }
-    Ok(if report.matched { Outcome::Ok } else { Outcome::Mismatch })
+    Ok(if report.matched {
+        Outcome::Ok
+    } else {
+        Outcome::Mismatch
+    })
 }

@@ -16,11 +16,20 @@ pub fn gen(a: GenArgs) -> Result<Outcome> {
 }
 
 fn gen_scan(a: GenScanArgs) -> Result<Outcome> {
-    let ty = a.ty.parse().map_err(|e| Error::input(format!("--type: {e}")))?;
+    let ty =
+        a.ty.parse()
+            .map_err(|e| Error::input(format!("--type: {e}")))?;
     let skew = match a.skew.as_str() {
         "uniform" => Skew::Uniform,
-        "zipf" => Skew::Zipf { theta: a.theta, distinct: 1000 },
-        o => return Err(Error::input(format!("--skew `{o}`: expected uniform or zipf"))),
+        "zipf" => Skew::Zipf {
+            theta: a.theta,
+            distinct: 1000,
+        },
+        o => {
+            return Err(Error::input(format!(
+                "--skew `{o}`: expected uniform or zipf"
+            )))
+        }
     };
     let (min, max) = if weir::table::ElemType::is_float(ty) {
         (a.lo - 10.0 * (a.hi - a.lo), a.hi + 10.0 * (a.hi - a.lo))
@@ -31,11 +40,23 @@ fn gen_scan(a: GenScanArgs) -> Result<Outcome> {
     let col = ColumnGen {
         name: "v".into(),
         ty,
-        dist: Dist::Select { selectivity: a.selectivity, lo: a.lo, hi: a.hi, min, max, skew },
+        dist: Dist::Select {
+            selectivity: a.selectivity,
+            lo: a.lo,
+            hi: a.hi,
+            min,
+            max,
+            skew,
+        },
         corners: a.corners,
     };
     col.validate().map_err(Error::input)?;
-    let g = TableGen { table: "scan".into(), rows: a.rows, seed: a.seed, shape: Shape::Columns(vec![col]) };
+    let g = TableGen {
+        table: "scan".into(),
+        rows: a.rows,
+        seed: a.seed,
+        shape: Shape::Columns(vec![col]),
+    };
     let table = g.generate(0..a.rows);
     let hits = {
         let c = &table.columns[0];
@@ -55,11 +76,17 @@ fn gen_scan(a: GenScanArgs) -> Result<Outcome> {
         }
         Some("npy") => {
             let mut v = Vec::new();
-            weir::table::write_npy_column(&mut v, &table.columns[0]).map_err(|e| Error::io(&a.out, e))?;
+            weir::table::write_npy_column(&mut v, &table.columns[0])
+                .map_err(|e| Error::io(&a.out, e))?;
             v
         }
         Some("bin") => weir::table::bin_column_bytes(&table.columns[0]),
-        _ => return Err(Error::input(format!("{}: --out must end in .csv, .npy or .bin", a.out.display()))),
+        _ => {
+            return Err(Error::input(format!(
+                "{}: --out must end in .csv, .npy or .bin",
+                a.out.display()
+            )))
+        }
     };
     write_file_atomic(&a.out, &bytes, a.force)?;
     println!(
@@ -78,9 +105,15 @@ fn gen_scan(a: GenScanArgs) -> Result<Outcome> {
 /// an existing `path` without `force`.
 pub fn write_file_atomic(path: &std::path::Path, bytes: &[u8], force: bool) -> Result<()> {
     if path.exists() && !force {
-        return Err(Error::exists(format!("{} exists; add --force to replace it", path.display())));
+        return Err(Error::exists(format!(
+            "{} exists; add --force to replace it",
+            path.display()
+        )));
     }
-    let name = path.file_name().map(|n| n.to_string_lossy().to_string()).unwrap_or_default();
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().to_string())
+        .unwrap_or_default();
     let tmp = path.with_file_name(format!(".{name}.weir-partial-{}", std::process::id()));
     let mut f = std::fs::File::create(&tmp).map_err(|e| Error::io(&tmp, e))?;
     f.write_all(bytes).map_err(|e| Error::io(&tmp, e))?;

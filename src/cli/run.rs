@@ -18,7 +18,13 @@ fn parse_seeds(s: &str) -> Result<std::ops::Range<u64>> {
     Ok(a.trim().parse().map_err(|_| bad())?..b.trim().parse().map_err(|_| bad())?)
 }
 
-fn execute(spec: &JobSpec, job_dir: &Path, out: &Path, force: bool, seeds: Option<std::ops::Range<u64>>) -> Result<()> {
+fn execute(
+    spec: &JobSpec,
+    job_dir: &Path,
+    out: &Path,
+    force: bool,
+    seeds: Option<std::ops::Range<u64>>,
+) -> Result<()> {
     let pb = super::progress(0, "partitions");
     let results = job::run(spec, job_dir, out, force, seeds, &mut |done, total| {
         pb.set_length(total as u64);
@@ -38,18 +44,42 @@ fn execute(spec: &JobSpec, job_dir: &Path, out: &Path, force: bool, seeds: Optio
 /// Prints the short summary of one run.
 fn print_summary(dir: &Path, s: &RunSummary) {
     println!("wrote {} files to {}", s.files, dir.display());
-    let achieved = if s.rows > 0 { s.matches as f64 / s.rows as f64 } else { 0.0 };
+    let achieved = if s.rows > 0 {
+        s.matches as f64 / s.rows as f64
+    } else {
+        0.0
+    };
     match s.requested_selectivity {
-        Some(r) => println!("selectivity: requested {:.4}%, achieved {:.4}% ({} of {} rows)", r * 100.0, achieved * 100.0, s.matches, s.rows),
-        None => println!("selectivity: {:.4}% ({} of {} rows)", achieved * 100.0, s.matches, s.rows),
+        Some(r) => println!(
+            "selectivity: requested {:.4}%, achieved {:.4}% ({} of {} rows)",
+            r * 100.0,
+            achieved * 100.0,
+            s.matches,
+            s.rows
+        ),
+        None => println!(
+            "selectivity: {:.4}% ({} of {} rows)",
+            achieved * 100.0,
+            s.matches,
+            s.rows
+        ),
     }
     let mut t = TextTable::new(&["engine", "channel", "rows", "matches"]);
     for p in &s.parts {
-        t.row(vec![p.partition.to_string(), p.channel.to_string(), p.rows.to_string(), p.matches.to_string()]);
+        t.row(vec![
+            p.partition.to_string(),
+            p.channel.to_string(),
+            p.rows.to_string(),
+            p.matches.to_string(),
+        ]);
     }
     println!("\n{}", t.render());
     println!("{}", ledger_report(&s.ledger));
-    let gbps = if s.kernel_s > 0.0 { s.input_bytes as f64 / s.kernel_s / 1e9 } else { 0.0 };
+    let gbps = if s.kernel_s > 0.0 {
+        s.input_bytes as f64 / s.kernel_s / 1e9
+    } else {
+        0.0
+    };
     println!(
         "host: kernel {:.3} s over {} ({gbps:.2} GB/s, {}, {} threads); generate {:.3} s; write {:.3} s",
         s.kernel_s,
@@ -74,7 +104,10 @@ pub fn run(a: RunArgs) -> Result<Outcome> {
 /// `weir demo`.
 pub fn demo(a: DemoArgs) -> Result<Outcome> {
     let spec = JobSpec::from_toml(DEMO_JOB, Path::new("data/jobs/demo.toml"))?;
-    println!("weir demo: wind-farm telemetry, predicate `{}`", demo_predicate(&spec));
+    println!(
+        "weir demo: wind-farm telemetry, predicate `{}`",
+        demo_predicate(&spec)
+    );
     execute(&spec, Path::new("."), &a.out, a.force, None)?;
     Ok(Outcome::Ok)
 }

@@ -35,7 +35,12 @@ pub enum Dist {
     /// Uniform in `[min, max]` (floats: `[min, max)`).
     Uniform { min: f64, max: f64 },
     /// Normal, clamped to `[min, max]`.
-    Normal { mean: f64, sd: f64, min: f64, max: f64 },
+    Normal {
+        mean: f64,
+        sd: f64,
+        min: f64,
+        max: f64,
+    },
     /// `start + step * global_row`.
     Sequence { start: f64, step: f64 },
     /// Requested selectivity for the match range `[lo, hi)` within `[min, max]`.
@@ -83,16 +88,35 @@ impl ColumnGen {
     /// Checks the parameters against the type; the message names the column.
     pub fn validate(&self) -> Result<(), String> {
         let n = &self.name;
-        let ok = |c: bool, m: &str| if c { Ok(()) } else { Err(format!("column `{n}`: {m}")) };
+        let ok = |c: bool, m: &str| {
+            if c {
+                Ok(())
+            } else {
+                Err(format!("column `{n}`: {m}"))
+            }
+        };
         match &self.dist {
             Dist::Uniform { min, max } => ok(min <= max, "min must not exceed max"),
             Dist::Normal { sd, min, max, .. } => {
                 ok(*sd >= 0.0 && min <= max, "needs sd >= 0 and min <= max")
             }
             Dist::Sequence { .. } => Ok(()),
-            Dist::Select { selectivity, lo, hi, min, max, skew } => {
-                ok((0.0..=1.0).contains(selectivity), "selectivity must be within 0..=1")?;
-                ok(min <= lo && lo < hi && hi <= max, "needs min <= lo < hi <= max")?;
+            Dist::Select {
+                selectivity,
+                lo,
+                hi,
+                min,
+                max,
+                skew,
+            } => {
+                ok(
+                    (0.0..=1.0).contains(selectivity),
+                    "selectivity must be within 0..=1",
+                )?;
+                ok(
+                    min <= lo && lo < hi && hi <= max,
+                    "needs min <= lo < hi <= max",
+                )?;
                 if !self.ty.is_float() {
                     let (tmin, tmax) = int_range(self.ty);
                     ok(
@@ -100,10 +124,16 @@ impl ColumnGen {
                         &format!("min..max must lie within the {} range", self.ty),
                     )?;
                     let outside = (*lo - *min) + (*max - *hi + 1.0);
-                    ok(outside > 0.0 || *selectivity == 1.0, "no values lie outside lo..hi")?;
+                    ok(
+                        outside > 0.0 || *selectivity == 1.0,
+                        "no values lie outside lo..hi",
+                    )?;
                 }
                 if let Skew::Zipf { theta, distinct } = skew {
-                    ok(*theta >= 0.0 && *distinct >= 1, "zipf needs theta >= 0 and distinct >= 1")?;
+                    ok(
+                        *theta >= 0.0 && *distinct >= 1,
+                        "zipf needs theta >= 0 and distinct >= 1",
+                    )?;
                 }
                 Ok(())
             }
@@ -128,7 +158,11 @@ impl ColumnGen {
         }
         if self.ty.is_float() {
             v.extend([f64::NAN, -0.0, 0.0, f64::INFINITY, f64::NEG_INFINITY].map(V::F));
-            let m = if self.ty == ElemType::F32 { f64::from(f32::MAX) } else { f64::MAX };
+            let m = if self.ty == ElemType::F32 {
+                f64::from(f32::MAX)
+            } else {
+                f64::MAX
+            };
             v.extend([V::F(-m), V::F(m)]);
         } else {
             let (a, b) = int_range(self.ty);
@@ -162,12 +196,23 @@ impl ColumnGen {
     fn generate_range(&self, seed: u64, table: &str, rows: std::ops::Range<u64>) -> ColumnData {
         let mut data = ColumnData::with_capacity(self.ty, (rows.end - rows.start) as usize);
         let zipf = match &self.dist {
-            Dist::Select { skew: Skew::Zipf { theta, distinct }, .. } => Some(Zipf::new(*distinct, *theta)),
+            Dist::Select {
+                skew: Skew::Zipf { theta, distinct },
+                ..
+            } => Some(Zipf::new(*distinct, *theta)),
             _ => None,
         };
-        let corners = if self.corners { self.corner_values() } else { Vec::new() };
+        let corners = if self.corners {
+            self.corner_values()
+        } else {
+            Vec::new()
+        };
         let ip = IntParams::of(&self.dist);
-        let (tmin, tmax) = if self.ty.is_float() { (0, 0) } else { int_range(self.ty) };
+        let (tmin, tmax) = if self.ty.is_float() {
+            (0, 0)
+        } else {
+            int_range(self.ty)
+        };
         let mut block_vals: Vec<V> = Vec::with_capacity(BLOCK_ROWS as usize);
         let first_block = rows.start / BLOCK_ROWS;
         let last_block = rows.end.div_ceil(BLOCK_ROWS);
@@ -175,7 +220,8 @@ impl ColumnGen {
             let mut s = Stream::new(seed, table, &self.name, b);
             let b0 = b * BLOCK_ROWS;
             block_vals.clear();
-            block_vals.extend((b0..b0 + BLOCK_ROWS).map(|r| self.draw(&mut s, r, zipf.as_ref(), &ip)));
+            block_vals
+                .extend((b0..b0 + BLOCK_ROWS).map(|r| self.draw(&mut s, r, zipf.as_ref(), &ip)));
             for c in &corners {
                 let at = s.int_in(0, BLOCK_ROWS as i128 - 1) as usize;
                 block_vals[at] = *c;
@@ -214,7 +260,14 @@ impl ColumnGen {
                     V::I(ip.lo + ip.hi * row as i128)
                 }
             }
-            Dist::Select { selectivity, lo, hi, min, max, .. } => {
+            Dist::Select {
+                selectivity,
+                lo,
+                hi,
+                min,
+                max,
+                ..
+            } => {
                 let hit = s.chance(*selectivity);
                 if float {
                     let u = match zipf {
@@ -231,7 +284,11 @@ impl ColumnGen {
                     }
                 } else {
                     let IntParams { lo, hi, min, max } = *ip;
-                    let (side_lo, count) = if hit { (lo, hi - lo) } else { (0, (lo - min) + (max - hi + 1)) };
+                    let (side_lo, count) = if hit {
+                        (lo, hi - lo)
+                    } else {
+                        (0, (lo - min) + (max - hi + 1))
+                    };
                     let k = match zipf {
                         Some(z) => spread_rank(z.sample(s), z.ranks() as i128, count, s),
                         None => s.int_in(0, count - 1),
@@ -263,9 +320,24 @@ impl IntParams {
     fn of(d: &Dist) -> IntParams {
         let i = |x: f64| x as i128;
         match *d {
-            Dist::Uniform { min, max } => IntParams { min: i(min), max: i(max), ..Default::default() },
-            Dist::Sequence { start, step } => IntParams { lo: i(start), hi: i(step), ..Default::default() },
-            Dist::Select { lo, hi, min, max, .. } => IntParams { lo: i(lo), hi: i(hi), min: i(min), max: i(max) },
+            Dist::Uniform { min, max } => IntParams {
+                min: i(min),
+                max: i(max),
+                ..Default::default()
+            },
+            Dist::Sequence { start, step } => IntParams {
+                lo: i(start),
+                hi: i(step),
+                ..Default::default()
+            },
+            Dist::Select {
+                lo, hi, min, max, ..
+            } => IntParams {
+                lo: i(lo),
+                hi: i(hi),
+                min: i(min),
+                max: i(max),
+            },
             Dist::Normal { .. } => IntParams::default(),
         }
     }
@@ -287,11 +359,23 @@ fn next_down(x: f64, ty: ElemType) -> f64 {
     if ty == ElemType::F32 {
         let f = x as f32;
         let b = f.to_bits();
-        let below = if f > 0.0 { f32::from_bits(b - 1) } else if f == 0.0 { -f32::from_bits(1) } else { f32::from_bits(b + 1) };
+        let below = if f > 0.0 {
+            f32::from_bits(b - 1)
+        } else if f == 0.0 {
+            -f32::from_bits(1)
+        } else {
+            f32::from_bits(b + 1)
+        };
         f64::from(below)
     } else {
         let b = x.to_bits();
-        if x > 0.0 { f64::from_bits(b - 1) } else if x == 0.0 { -f64::from_bits(1) } else { f64::from_bits(b + 1) }
+        if x > 0.0 {
+            f64::from_bits(b - 1)
+        } else if x == 0.0 {
+            -f64::from_bits(1)
+        } else {
+            f64::from_bits(b + 1)
+        }
     }
 }
 

@@ -45,8 +45,12 @@ pub fn generate(seed: u64, table: &str, turbines: u32, rows: std::ops::Range<u64
     let t = u64::from(turbines.max(1));
     let mut id = Vec::with_capacity(n);
     let mut ts = Vec::with_capacity(n);
-    let (mut wind, mut rpm, mut temp, mut power) =
-        (Vec::with_capacity(n), Vec::with_capacity(n), Vec::with_capacity(n), Vec::with_capacity(n));
+    let (mut wind, mut rpm, mut temp, mut power) = (
+        Vec::with_capacity(n),
+        Vec::with_capacity(n),
+        Vec::with_capacity(n),
+        Vec::with_capacity(n),
+    );
     let mut fault = Vec::with_capacity(n);
     for b in rows.start / BLOCK_ROWS..rows.end.div_ceil(BLOCK_ROWS) {
         let mut s = Stream::new(seed, table, "telemetry", b);

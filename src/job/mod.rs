@@ -33,7 +33,10 @@ pub fn run(
         None => vec![(None, prepare(spec, job_dir)?)],
         Some(r) => {
             if r.is_empty() {
-                return Err(Error::input(format!("--seeds {}..{} is empty", r.start, r.end)));
+                return Err(Error::input(format!(
+                    "--seeds {}..{} is empty",
+                    r.start, r.end
+                )));
             }
             r.map(|seed| {
                 let mut s = spec.clone();

@@ -133,7 +133,8 @@ impl OutDir {
     /// Writes a whole file and returns (bytes, sha256).
     pub fn write_all(&self, rel: &str, data: &[u8]) -> Result<(u64, String)> {
         let mut f = self.file(rel)?;
-        f.write_all(data).map_err(|e| Error::io(&self.tmp.join(rel), e))?;
+        f.write_all(data)
+            .map_err(|e| Error::io(&self.tmp.join(rel), e))?;
         f.finish().map_err(|e| Error::io(&self.tmp.join(rel), e))
     }
 

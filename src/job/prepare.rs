@@ -140,7 +140,12 @@ pub fn prepare(spec: &JobSpec, job_dir: &Path) -> Result<Prepared> {
             .iter()
             .map(|(n, t)| (n.to_string(), *t))
             .collect(),
-        (None, _) => spec.input.columns.iter().map(|c| (c.name.clone(), c.ty)).collect(),
+        (None, _) => spec
+            .input
+            .columns
+            .iter()
+            .map(|c| (c.name.clone(), c.ty))
+            .collect(),
     };
     let pred = predicate::compile(&scan_spec.predicate, &schema)
         .map_err(|e| Error::input(format!("kernel.predicate: {e}\n{}", e.caret())))?;
@@ -202,14 +207,22 @@ pub fn prepare(spec: &JobSpec, job_dir: &Path) -> Result<Prepared> {
             map.place(&input_region(table, p, "rows"), channels[p], n * rec)?;
         } else {
             for (name, ty) in &schema {
-                map.place(&input_region(table, p, name), channels[p], table::byte_len(*ty, n))?;
+                map.place(
+                    &input_region(table, p, name),
+                    channels[p],
+                    table::byte_len(*ty, n),
+                )?;
             }
         }
     }
     for (p, r) in ranges.iter().enumerate() {
         let cap = scan.capacity_bytes(&types, r.end - r.start);
         map.place(&output_region(SCAN, p, "out"), channels[p], cap)?;
-        map.place(&output_region(SCAN, p, "count"), channels[p], crate::kernels::scan::COUNT_BYTES)?;
+        map.place(
+            &output_region(SCAN, p, "count"),
+            channels[p],
+            crate::kernels::scan::COUNT_BYTES,
+        )?;
     }
     let parts = ranges
         .into_iter()
@@ -269,9 +282,10 @@ fn scan_params(
     rows: u64,
 ) -> Result<ScanParams> {
     let col_index = |name: &str| {
-        schema.iter().position(|(n, _)| n == name).ok_or_else(|| {
-            Error::input(format!("kernel.project: unknown column `{name}`"))
-        })
+        schema
+            .iter()
+            .position(|(n, _)| n == name)
+            .ok_or_else(|| Error::input(format!("kernel.project: unknown column `{name}`")))
     };
     let output = match s.output.as_str() {
         "row_ids" => ScanOutput::RowIds,
@@ -280,7 +294,11 @@ fn scan_params(
             if s.project.is_empty() {
                 return Err(Error::input("kernel.project: list the columns to project"));
             }
-            let cols = s.project.iter().map(|c| col_index(c)).collect::<Result<Vec<_>>>()?;
+            let cols = s
+                .project
+                .iter()
+                .map(|c| col_index(c))
+                .collect::<Result<Vec<_>>>()?;
             if let Some(&c) = cols.iter().find(|&&c| schema[c].1.is_sub_byte()) {
                 return Err(Error::input(format!(
                     "kernel.project: sub-byte column `{}` cannot be projected into records",
@@ -298,7 +316,11 @@ fn scan_params(
     let global_ids = match s.row_ids.as_str() {
         "global" => true,
         "local" => false,
-        o => return Err(Error::input(format!("kernel.row_ids: `{o}` (expected global or local)"))),
+        o => {
+            return Err(Error::input(format!(
+                "kernel.row_ids: `{o}` (expected global or local)"
+            )))
+        }
     };
     Ok(ScanParams {
         predicate: crate::kernels::scan::fuse_ranges(&predicate, schema),
@@ -313,8 +335,13 @@ fn load_files(spec: &JobSpec, job_dir: &Path) -> Result<Option<Table>> {
     let input = &spec.input;
     if let Some(csv) = &input.csv {
         let path = job_dir.join(csv);
-        let given: Option<Vec<(String, ElemType)>> = (!input.columns.is_empty())
-            .then(|| input.columns.iter().map(|c| (c.name.clone(), c.ty)).collect());
+        let given: Option<Vec<(String, ElemType)>> = (!input.columns.is_empty()).then(|| {
+            input
+                .columns
+                .iter()
+                .map(|c| (c.name.clone(), c.ty))
+                .collect()
+        });
         return table::read_csv(&path, &input.table, given.as_deref()).map(Some);
     }
     let from_files = input.columns.iter().filter(|c| c.file.is_some()).count();
@@ -322,7 +349,9 @@ fn load_files(spec: &JobSpec, job_dir: &Path) -> Result<Option<Table>> {
         return Ok(None);
     }
     if from_files != input.columns.len() {
-        return Err(Error::input("input.columns: either every column has a file or none does"));
+        return Err(Error::input(
+            "input.columns: either every column has a file or none does",
+        ));
     }
     let mut cols = Vec::new();
     for c in &input.columns {
@@ -339,7 +368,9 @@ fn load_files(spec: &JobSpec, job_dir: &Path) -> Result<Option<Table>> {
         };
         cols.push(col);
     }
-    Table::new(&input.table, cols).map(Some).map_err(Error::input)
+    Table::new(&input.table, cols)
+        .map(Some)
+        .map_err(Error::input)
 }
 
 /// The generator the job describes (telemetry, or one generator per column).
@@ -352,7 +383,12 @@ fn build_gen(spec: &mut JobSpec, schema: &[(String, ElemType)], pred: &Bound) ->
     match input.generator.as_deref() {
         Some("telemetry") => {
             let turbines = *input.turbines.get_or_insert(64);
-            return Ok(TableGen { table, rows, seed: input.seed, shape: Shape::Telemetry { turbines } });
+            return Ok(TableGen {
+                table,
+                rows,
+                seed: input.seed,
+                shape: Shape::Telemetry { turbines },
+            });
         }
         None | Some("columns") => {}
         Some(g) => {
@@ -362,17 +398,26 @@ fn build_gen(spec: &mut JobSpec, schema: &[(String, ElemType)], pred: &Bound) ->
         }
     }
     if input.columns.is_empty() {
-        return Err(Error::input("input: give columns (generated or from files) or a csv file"));
+        return Err(Error::input(
+            "input: give columns (generated or from files) or a csv file",
+        ));
     }
     let ranges = pred.ranges(schema);
     let mut gens = Vec::new();
     for (i, c) in input.columns.iter_mut().enumerate() {
-        let range = ranges.as_ref().and_then(|rs| rs.iter().find(|r| r.col == i));
+        let range = ranges
+            .as_ref()
+            .and_then(|rs| rs.iter().find(|r| r.col == i));
         let g = column_gen(c, range.map(|r| (r.lo, r.hi)))?;
         g.validate().map_err(Error::input)?;
         gens.push(g);
     }
-    Ok(TableGen { table, rows, seed: input.seed, shape: Shape::Columns(gens) })
+    Ok(TableGen {
+        table,
+        rows,
+        seed: input.seed,
+        shape: Shape::Columns(gens),
+    })
 }
 
 /// Builds a column generator, filling `lo`/`hi` of a `select` column from the predicate's
@@ -380,7 +425,12 @@ fn build_gen(spec: &mut JobSpec, schema: &[(String, ElemType)], pred: &Bound) ->
 fn column_gen(c: &mut ColumnSpec, pred_range: Option<(i128, i128)>) -> Result<ColumnGen> {
     let n = c.name.clone();
     let need = |v: Option<f64>, key: &str| {
-        v.ok_or_else(|| Error::input(format!("input.columns `{n}`: `{key}` is required for dist = \"{}\"", c.dist.as_deref().unwrap_or(""))))
+        v.ok_or_else(|| {
+            Error::input(format!(
+                "input.columns `{n}`: `{key}` is required for dist = \"{}\"",
+                c.dist.as_deref().unwrap_or("")
+            ))
+        })
     };
     let (tmin, tmax) = if c.ty.is_float() {
         (f64::NEG_INFINITY, f64::INFINITY)
@@ -414,14 +464,32 @@ fn column_gen(c: &mut ColumnSpec, pred_range: Option<(i128, i128)>) -> Result<Co
                     theta: need(c.theta, "theta")?,
                     distinct: c.distinct.unwrap_or(1000),
                 },
-                Some(o) => return Err(Error::input(format!("input.columns `{n}`: skew `{o}` (expected uniform or zipf)"))),
+                Some(o) => {
+                    return Err(Error::input(format!(
+                        "input.columns `{n}`: skew `{o}` (expected uniform or zipf)"
+                    )))
+                }
             };
             Dist::Select {
                 selectivity: need(c.selectivity, "selectivity")?,
                 lo: need(c.lo, "lo")?,
                 hi: need(c.hi, "hi")?,
-                min: c.min.or((!c.ty.is_float()).then_some(tmin)).ok_or_else(|| Error::input(format!("input.columns `{n}`: `min` is required for a float select column")))?,
-                max: c.max.or((!c.ty.is_float()).then_some(tmax)).ok_or_else(|| Error::input(format!("input.columns `{n}`: `max` is required for a float select column")))?,
+                min: c
+                    .min
+                    .or((!c.ty.is_float()).then_some(tmin))
+                    .ok_or_else(|| {
+                        Error::input(format!(
+                            "input.columns `{n}`: `min` is required for a float select column"
+                        ))
+                    })?,
+                max: c
+                    .max
+                    .or((!c.ty.is_float()).then_some(tmax))
+                    .ok_or_else(|| {
+                        Error::input(format!(
+                            "input.columns `{n}`: `max` is required for a float select column"
+                        ))
+                    })?,
                 skew,
             }
         }

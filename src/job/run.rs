@@ -76,7 +76,13 @@ impl Writer<'_> {
     }
 
     /// Writes `bytes` as a memory image in every format; `proto` carries the metadata.
-    fn images(&mut self, stem: &str, formats: &[ImageFormat], bytes: &[u8], proto: &FileEntry) -> Result<()> {
+    fn images(
+        &mut self,
+        stem: &str,
+        formats: &[ImageFormat],
+        bytes: &[u8],
+        proto: &FileEntry,
+    ) -> Result<()> {
         for &f in formats {
             let rel = self.rel(&format!("{stem}.{}", f.ext()));
             let mut out = self.dir.file(&rel)?;
@@ -99,7 +105,14 @@ impl Writer<'_> {
     }
 
     /// Writes a typed `.npy` array.
-    fn typed(&mut self, name: &str, descr: &str, shape: &[u64], data: &[u8], proto: &FileEntry) -> Result<()> {
+    fn typed(
+        &mut self,
+        name: &str,
+        descr: &str,
+        shape: &[u64],
+        data: &[u8],
+        proto: &FileEntry,
+    ) -> Result<()> {
         let rel = self.rel(name);
         let mut out = self.dir.file(&rel)?;
         crate::npy::write_npy(&mut out, descr, shape, data).map_err(self.io(&rel))?;
@@ -156,12 +169,17 @@ pub fn run_into(
         word_bytes: word_bytes as usize,
         files: Vec::new(),
     };
-    let mut channel_images: Vec<Option<ChannelImage>> = (0..prep.map.channels()).map(|_| None).collect();
+    let mut channel_images: Vec<Option<ChannelImage>> =
+        (0..prep.map.channels()).map(|_| None).collect();
     let mut ledger = Ledger::new();
     let mut parts = Vec::new();
     let (mut gen_s, mut kernel_s, mut write_s) = (0.0, 0.0, 0.0);
     let types: Vec<_> = prep.schema.iter().map(|(_, t)| *t).collect();
-    let region = |name: &str| -> &Placed { prep.map.get(name).expect("every region was placed in prepare") };
+    let region = |name: &str| -> &Placed {
+        prep.map
+            .get(name)
+            .expect("every region was placed in prepare")
+    };
     let elem_name = |c: usize| match prep.q.get(c).copied().flatten() {
         Some(q) => format!("{}:{q}", types[c]),
         None => types[c].to_string(),
@@ -203,7 +221,11 @@ pub fn run_into(
             let proto = FileEntry {
                 column: Some(col.clone()),
                 base: Some(reg.base),
-                elem: Some(if prep.row_major { "record".into() } else { elem_name(ci) }),
+                elem: Some(if prep.row_major {
+                    "record".into()
+                } else {
+                    elem_name(ci)
+                }),
                 ..base_entry.clone()
             };
             w.images(&format!("input/{name}"), &prep.formats, bytes, &proto)?;
@@ -211,10 +233,18 @@ pub fn run_into(
                 let ch = plan.channel as usize;
                 if channel_images[ch].is_none() {
                     let rel = w.rel(&format!("input/ch{ch}.hex"));
-                    channel_images[ch] = Some(ChannelImage { out: dir.file(&rel)?, rel, end_word: 0 });
+                    channel_images[ch] = Some(ChannelImage {
+                        out: dir.file(&rel)?,
+                        rel,
+                        end_word: 0,
+                    });
                 }
                 let img = channel_images[ch].as_mut().expect("opened above");
-                let seg = Segment { word_addr: reg.word_addr(word_bytes), bytes, label: &name };
+                let seg = Segment {
+                    word_addr: reg.word_addr(word_bytes),
+                    bytes,
+                    label: &name,
+                };
                 image::write_hex_segments(&mut img.out, word_bytes as usize, &[seg])
                     .map_err(|e| Error::input(format!("{}: {e}", img.rel)))?;
                 img.end_word = img.end_word.max(reg.word_addr(word_bytes) + reg.words);
@@ -230,8 +260,18 @@ pub fn run_into(
                 } else {
                     table::column_bytes(c, 0..c.len(), &mut data);
                 }
-                let proto = FileEntry { column: Some(c.name.clone()), elem: Some(elem_name(ci)), ..base_entry.clone() };
-                w.typed(&format!("arrays/{}.npy", input_region(table_name, p, &c.name)), c.ty.npy_descr(), &[c.len() as u64], &data, &proto)?;
+                let proto = FileEntry {
+                    column: Some(c.name.clone()),
+                    elem: Some(elem_name(ci)),
+                    ..base_entry.clone()
+                };
+                w.typed(
+                    &format!("arrays/{}.npy", input_region(table_name, p, &c.name)),
+                    c.ty.npy_descr(),
+                    &[c.len() as u64],
+                    &data,
+                    &proto,
+                )?;
             }
         }
         write_s += t1.elapsed().as_secs_f64();
@@ -242,14 +282,19 @@ pub fn run_into(
         let column_bases = if prep.row_major {
             Vec::new()
         } else {
-            part.columns.iter().map(|c| region(&input_region(table_name, p, &c.name)).base).collect()
+            part.columns
+                .iter()
+                .map(|c| region(&input_region(table_name, p, &c.name)).base)
+                .collect()
         };
         let io = EngineIo {
             engine: p as u32,
             channel: plan.channel,
             word_bytes,
             column_bases,
-            row_base: prep.row_major.then(|| region(&input_region(table_name, p, "rows")).base),
+            row_base: prep
+                .row_major
+                .then(|| region(&input_region(table_name, p, "rows")).base),
             out_base: out_reg.base,
             count_base: count_reg.base,
         };
@@ -262,9 +307,17 @@ pub fn run_into(
         // Golden outputs.
         let t3 = Instant::now();
         let (elem, rec_bytes, records) = match &prep.scan.output {
-            ScanOutput::RowIds => (if prep.scan.wide_ids { "u64" } else { "u32" }.to_string(), prep.scan.record_bytes(&types), res.count),
+            ScanOutput::RowIds => (
+                if prep.scan.wide_ids { "u64" } else { "u32" }.to_string(),
+                prep.scan.record_bytes(&types),
+                res.count,
+            ),
             ScanOutput::Bitmap => ("bits".to_string(), 0, part.rows() as u64),
-            ScanOutput::Project(_) => ("record".to_string(), prep.scan.record_bytes(&types), res.count),
+            ScanOutput::Project(_) => (
+                "record".to_string(),
+                prep.scan.record_bytes(&types),
+                res.count,
+            ),
         };
         let gold = FileEntry {
             role: Some(Role::Golden),
@@ -280,35 +333,82 @@ pub fn run_into(
             &format!("golden/{out_name}"),
             &prep.formats,
             &res.out,
-            &FileEntry { column: Some("out".into()), base: Some(out_reg.base), elem: Some(elem.clone()), records: Some(records), record_bytes: Some(rec_bytes), ..gold.clone() },
+            &FileEntry {
+                column: Some("out".into()),
+                base: Some(out_reg.base),
+                elem: Some(elem.clone()),
+                records: Some(records),
+                record_bytes: Some(rec_bytes),
+                ..gold.clone()
+            },
         )?;
         let count_name = output_region(SCAN, p, "count");
         w.images(
             &format!("golden/{count_name}"),
             &prep.formats,
             &res.count.to_le_bytes(),
-            &FileEntry { column: Some("count".into()), base: Some(count_reg.base), elem: Some("u64".into()), records: Some(1), record_bytes: Some(8), ..gold.clone() },
+            &FileEntry {
+                column: Some("count".into()),
+                base: Some(count_reg.base),
+                elem: Some("u64".into()),
+                records: Some(1),
+                record_bytes: Some(8),
+                ..gold.clone()
+            },
         )?;
         if spec.output.typed_npy {
-            let proto = FileEntry { column: Some("out".into()), elem: Some(elem.clone()), records: Some(records), record_bytes: Some(rec_bytes), ..gold.clone() };
+            let proto = FileEntry {
+                column: Some("out".into()),
+                elem: Some(elem.clone()),
+                records: Some(records),
+                record_bytes: Some(rec_bytes),
+                ..gold.clone()
+            };
             match &prep.scan.output {
                 ScanOutput::RowIds => {
                     let d = if prep.scan.wide_ids { "<u8" } else { "<u4" };
-                    w.typed(&format!("arrays/{out_name}.npy"), d, &[res.count], &res.out, &proto)?;
+                    w.typed(
+                        &format!("arrays/{out_name}.npy"),
+                        d,
+                        &[res.count],
+                        &res.out,
+                        &proto,
+                    )?;
                 }
                 ScanOutput::Bitmap => {
-                    w.typed(&format!("arrays/{out_name}.npy"), "|u1", &[res.out.len() as u64], &res.out, &proto)?;
+                    w.typed(
+                        &format!("arrays/{out_name}.npy"),
+                        "|u1",
+                        &[res.out.len() as u64],
+                        &res.out,
+                        &proto,
+                    )?;
                 }
                 ScanOutput::Project(cols) => {
                     // One typed array per projected column, cut from the records.
-                    let widths: Vec<usize> = cols.iter().map(|&c| types[c].bits() as usize / 8).collect();
+                    let widths: Vec<usize> =
+                        cols.iter().map(|&c| types[c].bits() as usize / 8).collect();
                     let rec: usize = widths.iter().sum();
                     let mut off = 0;
                     for (&c, &wd) in cols.iter().zip(&widths) {
-                        let data: Vec<u8> = res.out.chunks_exact(rec.max(1)).flat_map(|r| r[off..off + wd].to_vec()).collect();
+                        let data: Vec<u8> = res
+                            .out
+                            .chunks_exact(rec.max(1))
+                            .flat_map(|r| r[off..off + wd].to_vec())
+                            .collect();
                         off += wd;
                         let name = format!("arrays/{out_name}.{}.npy", prep.schema[c].0);
-                        w.typed(&name, types[c].npy_descr(), &[res.count], &data, &FileEntry { column: Some(format!("out.{}", prep.schema[c].0)), elem: Some(types[c].to_string()), ..proto.clone() })?;
+                        w.typed(
+                            &name,
+                            types[c].npy_descr(),
+                            &[res.count],
+                            &data,
+                            &FileEntry {
+                                column: Some(format!("out.{}", prep.schema[c].0)),
+                                elem: Some(types[c].to_string()),
+                                ..proto.clone()
+                            },
+                        )?;
                     }
                 }
             }
@@ -343,9 +443,15 @@ pub fn run_into(
             });
         }
     }
-    let ledger_json = serde_json::to_string_pretty(&ledger.to_json(word_bits)).expect("json") + "\n";
+    let ledger_json =
+        serde_json::to_string_pretty(&ledger.to_json(word_bits)).expect("json") + "\n";
     w.plain("ledger.json", Role::Ledger, "json", ledger_json.as_bytes())?;
-    w.plain("ledger.csv", Role::Ledger, "csv", ledger.to_csv().as_bytes())?;
+    w.plain(
+        "ledger.csv",
+        Role::Ledger,
+        "csv",
+        ledger.to_csv().as_bytes(),
+    )?;
     let map = crate::memmap::MapInfo { prep };
     w.plain("memory_map.vh", Role::Map, "vh", map.verilog().as_bytes())?;
     w.plain("memory_map.json", Role::Map, "json", map.json().as_bytes())?;
@@ -363,7 +469,9 @@ pub fn run_into(
 
     let rows = prep.source.rows();
     let matches = parts.iter().map(|p| p.matches).sum();
-    let input_bytes = ledger.sum(|k| k.direction == crate::ledger::Direction::Read).bytes;
+    let input_bytes = ledger
+        .sum(|k| k.direction == crate::ledger::Direction::Read)
+        .bytes;
     let summary = RunSummary {
         files,
         rows,
@@ -388,11 +496,22 @@ pub fn run_into(
     });
     let rel = w.rel("timing.json");
     let mut f = dir.file(&rel)?;
-    writeln!(f, "{}", serde_json::to_string_pretty(&timing).expect("json")).map_err(w.io(&rel))?;
+    writeln!(
+        f,
+        "{}",
+        serde_json::to_string_pretty(&timing).expect("json")
+    )
+    .map_err(w.io(&rel))?;
     f.finish().map_err(w.io(&rel))?;
     Ok(summary)
 }
 
 fn requested_selectivity(prep: &Prepared) -> Option<f64> {
-    prep.spec.input.columns.iter().find_map(|c| if c.dist.as_deref() == Some("select") { c.selectivity } else { None })
+    prep.spec.input.columns.iter().find_map(|c| {
+        if c.dist.as_deref() == Some("select") {
+            c.selectivity
+        } else {
+            None
+        }
+    })
 }

@@ -269,13 +269,22 @@ mod tests {
     #[test]
     fn unknown_keys_are_errors_with_line() {
         let text = MIN.replace("[kernel]", "[layout]\nword_bit = 64\n[kernel]");
-        let e = JobSpec::from_toml(&text, Path::new("j.toml")).unwrap_err().to_string();
-        assert!(e.starts_with("j.toml, line 10: unknown field `word_bit`"), "{e}");
+        let e = JobSpec::from_toml(&text, Path::new("j.toml"))
+            .unwrap_err()
+            .to_string();
+        assert!(
+            e.starts_with("j.toml, line 10: unknown field `word_bit`"),
+            "{e}"
+        );
         let text = MIN.replace("predicate", "predicat");
-        let e = JobSpec::from_toml(&text, Path::new("j.toml")).unwrap_err().to_string();
+        let e = JobSpec::from_toml(&text, Path::new("j.toml"))
+            .unwrap_err()
+            .to_string();
         assert!(e.contains("unknown field `predicat`"), "{e}");
         let text = MIN.replace("\"scan\"", "\"scna\"");
-        let e = JobSpec::from_toml(&text, Path::new("j.toml")).unwrap_err().to_string();
+        let e = JobSpec::from_toml(&text, Path::new("j.toml"))
+            .unwrap_err()
+            .to_string();
         assert!(e.contains("unknown variant `scna`"), "{e}");
     }
 }

@@ -8,7 +8,9 @@ use super::types::{Elem, ElemType, QFormat};
 use crate::error::{Error, Result};
 
 /// One header cell: name, optional type, optional fixed-point format.
-fn parse_header_cell(cell: &str) -> std::result::Result<(String, Option<ElemType>, Option<QFormat>), String> {
+fn parse_header_cell(
+    cell: &str,
+) -> std::result::Result<(String, Option<ElemType>, Option<QFormat>), String> {
     let mut parts = cell.trim().split(':');
     let name = parts.next().unwrap_or("").to_string();
     if name.is_empty() {
@@ -66,7 +68,8 @@ fn push_cell(data: &mut ColumnData, ty: ElemType, cell: &str) -> std::result::Re
 /// header cell must carry its type (`name:type`). With both, they must agree.
 pub fn read_csv(path: &Path, table: &str, schema: Option<&[(String, ElemType)]>) -> Result<Table> {
     let file = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
-    let at = |line: u64, msg: String| Error::input(format!("{}, line {line}: {msg}", path.display()));
+    let at =
+        |line: u64, msg: String| Error::input(format!("{}, line {line}: {msg}", path.display()));
     let mut rdr = csv::ReaderBuilder::new()
         .has_headers(true)
         .flexible(true)
@@ -89,16 +92,27 @@ pub fn read_csv(path: &Path, table: &str, schema: Option<&[(String, ElemType)]>)
             }
         };
         if let Some(q) = q {
-            q.check(ty).map_err(|m| at(1, format!("column `{name}`: {m}")))?;
+            q.check(ty)
+                .map_err(|m| at(1, format!("column `{name}`: {m}")))?;
         }
         cols.push((name, ty, q));
     }
     if let Some(s) = schema {
         if s.len() != cols.len() {
-            return Err(at(1, format!("header has {} columns, the job expects {}", cols.len(), s.len())));
+            return Err(at(
+                1,
+                format!(
+                    "header has {} columns, the job expects {}",
+                    cols.len(),
+                    s.len()
+                ),
+            ));
         }
     }
-    let mut data: Vec<ColumnData> = cols.iter().map(|(_, t, _)| ColumnData::with_capacity(*t, 0)).collect();
+    let mut data: Vec<ColumnData> = cols
+        .iter()
+        .map(|(_, t, _)| ColumnData::with_capacity(*t, 0))
+        .collect();
     let mut record = csv::StringRecord::new();
     loop {
         let more = rdr.read_record(&mut record).map_err(|e| {
@@ -110,7 +124,10 @@ pub fn read_csv(path: &Path, table: &str, schema: Option<&[(String, ElemType)]>)
         }
         let line = record.position().map_or(0, |p| p.line());
         if record.len() != cols.len() {
-            return Err(at(line, format!("{} fields, the header has {}", record.len(), cols.len())));
+            return Err(at(
+                line,
+                format!("{} fields, the header has {}", record.len(), cols.len()),
+            ));
         }
         for ((cell, (name, ty, _)), d) in record.iter().zip(&cols).zip(&mut data) {
             push_cell(d, *ty, cell).map_err(|m| at(line, format!("column `{name}`: {m}")))?;
@@ -175,23 +192,38 @@ mod tests {
         let p = tmp("rt", "a:u8,b:f32,c:i16:Q3.12\n1,0.5,-4096\n255,NaN,7\n");
         let t = read_csv(&p, "t", None).unwrap();
         assert_eq!(t.rows(), 2);
-        assert_eq!(t.columns[2].q, Some(QFormat { int_bits: 3, frac_bits: 12 }));
+        assert_eq!(
+            t.columns[2].q,
+            Some(QFormat {
+                int_bits: 3,
+                frac_bits: 12
+            })
+        );
         let mut out = Vec::new();
         write_csv(&mut out, &t).unwrap();
-        assert_eq!(String::from_utf8(out).unwrap(), "a:u8,b:f32,c:i16:Q3.12\n1,0.5,-4096\n255,NaN,7\n");
+        assert_eq!(
+            String::from_utf8(out).unwrap(),
+            "a:u8,b:f32,c:i16:Q3.12\n1,0.5,-4096\n255,NaN,7\n"
+        );
     }
 
     #[test]
     fn errors_name_line_and_column() {
         let p = tmp("range", "a:u8,b:i8\n1,2\n256,3\n");
         let e = read_csv(&p, "t", None).unwrap_err().to_string();
-        assert!(e.ends_with("line 3: column `a`: value 256 is out of range for u8"), "{e}");
+        assert!(
+            e.ends_with("line 3: column `a`: value 256 is out of range for u8"),
+            "{e}"
+        );
         let p = tmp("ragged", "a:u8,b:i8\n1,2\n4\n");
         let e = read_csv(&p, "t", None).unwrap_err().to_string();
         assert!(e.ends_with("line 3: 1 fields, the header has 2"), "{e}");
         let p = tmp("nonnum", "a:u8,b:f64\n1,abc\n");
         let e = read_csv(&p, "t", None).unwrap_err().to_string();
-        assert!(e.ends_with("line 2: column `b`: `abc` is not a f64 number"), "{e}");
+        assert!(
+            e.ends_with("line 2: column `b`: `abc` is not a f64 number"),
+            "{e}"
+        );
         let p = tmp("untyped", "a,b\n1,2\n");
         let e = read_csv(&p, "t", None).unwrap_err().to_string();
         assert!(e.contains("has no type"), "{e}");

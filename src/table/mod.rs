@@ -114,11 +114,7 @@ pub fn write_npy_column<W: std::io::Write>(w: &mut W, col: &Column) -> std::io::
 
 /// Reads a 1-D `.npy` column. With `ty` given, the file's dtype must agree with it
 /// (a sub-byte type expects `|u1` and checks every value fits).
-pub fn read_npy_column(
-    path: &std::path::Path,
-    name: &str,
-    ty: Option<ElemType>,
-) -> Result<Column> {
+pub fn read_npy_column(path: &std::path::Path, name: &str, ty: Option<ElemType>) -> Result<Column> {
     let bytes = std::fs::read(path).map_err(|e| Error::io(path, e))?;
     let (header, data) = crate::npy::read_npy(&bytes)
         .map_err(|e| Error::input(format!("{}: {e}", path.display())))?;

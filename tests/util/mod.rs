@@ -81,7 +81,11 @@ pub fn tree(dir: &Path) -> Vec<(String, Vec<u8>)> {
             if p.is_dir() {
                 walk(base, &p, out);
             } else {
-                let rel = p.strip_prefix(base).expect("inside").to_string_lossy().replace('\\', "/");
+                let rel = p
+                    .strip_prefix(base)
+                    .expect("inside")
+                    .to_string_lossy()
+                    .replace('\\', "/");
                 out.push((rel, std::fs::read(&p).expect("read")));
             }
         }

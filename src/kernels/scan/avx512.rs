@@ -80,14 +80,78 @@ macro_rules! int_lane {
     };
 }
 
-int_lane!(u8, 64, _mm512_set1_epi8, i8, _mm512_cmp_epu8_mask, _mm512_cmp_epu8_mask, _mm512_sub_epi8);
-int_lane!(u16, 32, _mm512_set1_epi16, i16, _mm512_cmp_epu16_mask, _mm512_cmp_epu16_mask, _mm512_sub_epi16);
-int_lane!(u32, 16, _mm512_set1_epi32, i32, _mm512_cmp_epu32_mask, _mm512_cmp_epu32_mask, _mm512_sub_epi32);
-int_lane!(u64, 8, _mm512_set1_epi64, i64, _mm512_cmp_epu64_mask, _mm512_cmp_epu64_mask, _mm512_sub_epi64);
-int_lane!(i8, 64, _mm512_set1_epi8, i8, _mm512_cmp_epi8_mask, _mm512_cmp_epu8_mask, _mm512_sub_epi8);
-int_lane!(i16, 32, _mm512_set1_epi16, i16, _mm512_cmp_epi16_mask, _mm512_cmp_epu16_mask, _mm512_sub_epi16);
-int_lane!(i32, 16, _mm512_set1_epi32, i32, _mm512_cmp_epi32_mask, _mm512_cmp_epu32_mask, _mm512_sub_epi32);
-int_lane!(i64, 8, _mm512_set1_epi64, i64, _mm512_cmp_epi64_mask, _mm512_cmp_epu64_mask, _mm512_sub_epi64);
+int_lane!(
+    u8,
+    64,
+    _mm512_set1_epi8,
+    i8,
+    _mm512_cmp_epu8_mask,
+    _mm512_cmp_epu8_mask,
+    _mm512_sub_epi8
+);
+int_lane!(
+    u16,
+    32,
+    _mm512_set1_epi16,
+    i16,
+    _mm512_cmp_epu16_mask,
+    _mm512_cmp_epu16_mask,
+    _mm512_sub_epi16
+);
+int_lane!(
+    u32,
+    16,
+    _mm512_set1_epi32,
+    i32,
+    _mm512_cmp_epu32_mask,
+    _mm512_cmp_epu32_mask,
+    _mm512_sub_epi32
+);
+int_lane!(
+    u64,
+    8,
+    _mm512_set1_epi64,
+    i64,
+    _mm512_cmp_epu64_mask,
+    _mm512_cmp_epu64_mask,
+    _mm512_sub_epi64
+);
+int_lane!(
+    i8,
+    64,
+    _mm512_set1_epi8,
+    i8,
+    _mm512_cmp_epi8_mask,
+    _mm512_cmp_epu8_mask,
+    _mm512_sub_epi8
+);
+int_lane!(
+    i16,
+    32,
+    _mm512_set1_epi16,
+    i16,
+    _mm512_cmp_epi16_mask,
+    _mm512_cmp_epu16_mask,
+    _mm512_sub_epi16
+);
+int_lane!(
+    i32,
+    16,
+    _mm512_set1_epi32,
+    i32,
+    _mm512_cmp_epi32_mask,
+    _mm512_cmp_epu32_mask,
+    _mm512_sub_epi32
+);
+int_lane!(
+    i64,
+    8,
+    _mm512_set1_epi64,
+    i64,
+    _mm512_cmp_epi64_mask,
+    _mm512_cmp_epu64_mask,
+    _mm512_sub_epi64
+);
 
 macro_rules! float_lane {
     ($t:ty, $lanes:expr, $set1:ident, $load:ident, $cmp:ident) => {
@@ -104,7 +168,7 @@ macro_rules! float_lane {
             }
             #[inline(always)]
             unsafe fn fill_cmp(xs: &[Self], out: &mut [u64], op: CmpOp, c: Self) -> usize {
-                    match op {
+                match op {
                     CmpOp::Eq => fill(xs, out, |p| Self::cmp_mask::<F_EQ>(p, c)),
                     CmpOp::Lt => fill(xs, out, |p| Self::cmp_mask::<F_LT>(p, c)),
                     CmpOp::Le => fill(xs, out, |p| Self::cmp_mask::<F_LE>(p, c)),

@@ -71,10 +71,7 @@ impl ScanParams {
                 }
             }
             ScanOutput::Bitmap => 0,
-            ScanOutput::Project(cols) => cols
-                .iter()
-                .map(|&c| u64::from(types[c].bits() / 8))
-                .sum(),
+            ScanOutput::Project(cols) => cols.iter().map(|&c| u64::from(types[c].bits() / 8)).sum(),
         }
     }
 
@@ -152,12 +149,23 @@ pub fn scan_partition(
             let r = c * CHUNK_ROWS..((c + 1) * CHUNK_ROWS).min(rows);
             w.masks.resize(r.len().div_ceil(64), 0);
             let masks = &mut w.masks[..r.len().div_ceil(64)];
-            mask::eval(isa, &params.predicate, table, r.clone(), masks, &mut w.scratch);
+            mask::eval(
+                isa,
+                &params.predicate,
+                table,
+                r.clone(),
+                masks,
+                &mut w.scratch,
+            );
             let count = masks.iter().map(|m| u64::from(m.count_ones())).sum();
             let mut read = Traffic::default();
             let (start, len) = (r.start as u64, r.len() as u64);
             if let Some(base) = io.row_base {
-                let rec: u64 = table.columns.iter().map(|c| u64::from(c.ty.bits() / 8)).sum();
+                let rec: u64 = table
+                    .columns
+                    .iter()
+                    .map(|c| u64::from(c.ty.bits() / 8))
+                    .sum();
                 let mut cur = Cursor::new(base + start * rec, io.word_bytes);
                 cur.touch(len * rec, len);
                 read += cur.traffic;
@@ -165,7 +173,8 @@ pub fn scan_partition(
                 // Rows are logical: counted once per row, on the first column streamed.
                 for (k, &ci) in cols.iter().enumerate() {
                     let ty = table.columns[ci].ty;
-                    let mut cur = Cursor::new(io.column_bases[ci] + byte_len(ty, start), io.word_bytes);
+                    let mut cur =
+                        Cursor::new(io.column_bases[ci] + byte_len(ty, start), io.word_bytes);
                     cur.touch(byte_len(ty, len), if k == 0 { len } else { 0 });
                     read += cur.traffic;
                 }
@@ -233,12 +242,17 @@ fn chunk_records(
                 for_each_match(masks, |i| out.extend_from_slice(&(base + i).to_le_bytes()));
             } else {
                 // The job chooses u32 ids only when every row id fits.
-                for_each_match(masks, |i| out.extend_from_slice(&((base + i) as u32).to_le_bytes()));
+                for_each_match(masks, |i| {
+                    out.extend_from_slice(&((base + i) as u32).to_le_bytes())
+                });
             }
             out
         }
         ScanOutput::Project(cols) => {
-            let rec: usize = cols.iter().map(|&c| table.columns[c].ty.bits() as usize / 8).sum();
+            let rec: usize = cols
+                .iter()
+                .map(|&c| table.columns[c].ty.bits() as usize / 8)
+                .sum();
             let mut out = Vec::with_capacity(count as usize * rec);
             for_each_match(masks, |i| {
                 let row = r.start + i as usize;
@@ -262,9 +276,22 @@ pub fn fuse_ranges(pred: &Bound, schema: &[(String, ElemType)]) -> Bound {
         let ty = schema[r.col].1;
         let (min, max) = crate::gen::columns::int_range(ty);
         // A range outside the type matches nothing: an inverted between.
-        let (lo, hi) = if r.lo > max || r.hi < min || r.lo > r.hi { (max, min) } else { (r.lo.max(min), r.hi.min(max)) };
-        let s = |v: i128| if ty.is_signed_int() { Scalar::I(v as i64) } else { Scalar::U(v as u64) };
-        Bound::Leaf { col: r.col, test: Test::Between(s(lo), s(hi)) }
+        let (lo, hi) = if r.lo > max || r.hi < min || r.lo > r.hi {
+            (max, min)
+        } else {
+            (r.lo.max(min), r.hi.min(max))
+        };
+        let s = |v: i128| {
+            if ty.is_signed_int() {
+                Scalar::I(v as i64)
+            } else {
+                Scalar::U(v as u64)
+            }
+        };
+        Bound::Leaf {
+            col: r.col,
+            test: Test::Between(s(lo), s(hi)),
+        }
     };
     ranges
         .iter()
