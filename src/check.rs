@@ -177,11 +177,7 @@ pub fn check(golden_dir: &Path, device: &Path, opts: CheckOptions) -> Result<Che
 }
 
 /// The bytes of `dump` at byte offset `off`, or why they cannot be read.
-fn dump_bytes(
-    dump: &WordDump,
-    off: u64,
-    len: u64,
-) -> std::result::Result<Vec<u8>, &'static str> {
+fn dump_bytes(dump: &WordDump, off: u64, len: u64) -> std::result::Result<Vec<u8>, &'static str> {
     let wb = dump.word_bytes as u64;
     let mut out = Vec::with_capacity(len as usize);
     for b in off..off + len {

@@ -154,7 +154,7 @@ impl MapInfo<'_> {
             for r in ranges {
                 let (name, ty) = &p.schema[r.col];
                 let (bits, signed) = (ty.bits() + 1, ty.is_signed_int());
-                let (min, max) = crate::gen::columns::int_range(*ty);
+                let (min, max) = ty.int_range();
                 let lo = r.lo.clamp(min, max + 1);
                 let hi = r.hi_excl().clamp(min, max + 1);
                 let up = name.to_uppercase();

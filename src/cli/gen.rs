@@ -34,7 +34,7 @@ fn gen_scan(a: GenScanArgs) -> Result<Outcome> {
     let (min, max) = if weir::table::ElemType::is_float(ty) {
         (a.lo - 10.0 * (a.hi - a.lo), a.hi + 10.0 * (a.hi - a.lo))
     } else {
-        let (mn, mx) = weir::gen::columns::int_range(ty);
+        let (mn, mx) = ty.int_range();
         (mn as f64, mx as f64)
     };
     let col = ColumnGen {

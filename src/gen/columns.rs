@@ -74,16 +74,6 @@ enum V {
     F(f64),
 }
 
-/// An integer type's range as (min, max).
-pub fn int_range(ty: ElemType) -> (i128, i128) {
-    let b = ty.bits();
-    if ty.is_signed_int() {
-        (-(1i128 << (b - 1)), (1i128 << (b - 1)) - 1)
-    } else {
-        (0, (1i128 << b) - 1)
-    }
-}
-
 impl ColumnGen {
     /// Checks the parameters against the type; the message names the column.
     pub fn validate(&self) -> Result<(), String> {
@@ -118,7 +108,7 @@ impl ColumnGen {
                     "needs min <= lo < hi <= max",
                 )?;
                 if !self.ty.is_float() {
-                    let (tmin, tmax) = int_range(self.ty);
+                    let (tmin, tmax) = self.ty.int_range();
                     ok(
                         *min as i128 >= tmin && *max as i128 <= tmax,
                         &format!("min..max must lie within the {} range", self.ty),
@@ -165,7 +155,7 @@ impl ColumnGen {
             };
             v.extend([V::F(-m), V::F(m)]);
         } else {
-            let (a, b) = int_range(self.ty);
+            let (a, b) = self.ty.int_range();
             v.extend([V::I(a), V::I(b)]);
         }
         v
@@ -211,7 +201,7 @@ impl ColumnGen {
         let (tmin, tmax) = if self.ty.is_float() {
             (0, 0)
         } else {
-            int_range(self.ty)
+            self.ty.int_range()
         };
         let mut block_vals: Vec<V> = Vec::with_capacity(BLOCK_ROWS as usize);
         let first_block = rows.start / BLOCK_ROWS;

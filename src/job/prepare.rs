@@ -5,7 +5,7 @@
 use std::path::Path;
 
 use crate::error::{Error, Result};
-use crate::gen::{columns::int_range, ColumnGen, Dist, Shape, Skew, TableGen};
+use crate::gen::{ColumnGen, Dist, Shape, Skew, TableGen};
 use crate::image::ImageFormat;
 use crate::job::spec::{ColumnSpec, JobSpec, KernelSpec, PlacementSpec, ScanSpec};
 use crate::kernels::predicate::{self, Bound};
@@ -435,7 +435,7 @@ fn column_gen(c: &mut ColumnSpec, pred_range: Option<(i128, i128)>) -> Result<Co
     let (tmin, tmax) = if c.ty.is_float() {
         (f64::NEG_INFINITY, f64::INFINITY)
     } else {
-        let (a, b) = int_range(c.ty);
+        let (a, b) = c.ty.int_range();
         (a as f64, b as f64)
     };
     let dist = match c.dist.as_deref() {

@@ -77,6 +77,18 @@ impl ElemType {
         )
     }
 
+    /// An integer type's range as (min, max); for floats (0, 0).
+    pub fn int_range(self) -> (i128, i128) {
+        let b = self.bits();
+        if self.is_float() {
+            (0, 0)
+        } else if self.is_signed_int() {
+            (-(1i128 << (b - 1)), (1i128 << (b - 1)) - 1)
+        } else {
+            (0, (1i128 << b) - 1)
+        }
+    }
+
     /// The name used in job files, CSV headers and the manifest.
     pub fn name(self) -> &'static str {
         match self {

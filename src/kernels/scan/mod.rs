@@ -274,7 +274,7 @@ pub fn fuse_ranges(pred: &Bound, schema: &[(String, ElemType)]) -> Bound {
     };
     let leaf = |r: &crate::kernels::predicate::ColumnRange| {
         let ty = schema[r.col].1;
-        let (min, max) = crate::gen::columns::int_range(ty);
+        let (min, max) = ty.int_range();
         // A range outside the type matches nothing: an inverted between.
         let (lo, hi) = if r.lo > max || r.hi < min || r.lo > r.hi {
             (max, min)

@@ -1,0 +1,12 @@
+//! criterion benchmarks, one module per kernel. `cargo bench` runs them all.
+
+use criterion::{criterion_group, criterion_main};
+
+mod scan;
+
+criterion_group! {
+    name = kernels;
+    config = criterion::Criterion::default().sample_size(10);
+    targets = scan::bench
+}
+criterion_main!(kernels);
