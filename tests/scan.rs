@@ -16,7 +16,8 @@ use weir::kernels::scan::{
 use weir::ledger::{Direction, Key, Traffic};
 use weir::table::{byte_len, column_bytes, Column, ColumnData, ElemType, Table};
 
-/// SplitMix64: a small seeded generator, so one proptest seed drives a whole case.
+/// SplitMix64 (constants recalled from memory; any good mixer serves): a small seeded
+/// generator, so one proptest seed drives a whole case.
 struct Rng(u64);
 
 impl Rng {
@@ -111,7 +112,13 @@ enum Values {
 /// The values a float column of `ty` plants: NaN, both zeros, both infinities, the type's
 /// extremes, the smallest normal and subnormal, and a few plain numbers.
 fn float_pool(ty: ElemType) -> Vec<f64> {
-    let round = |x: f64| if ty == ElemType::F32 { f64::from(x as f32) } else { x };
+    let round = |x: f64| {
+        if ty == ElemType::F32 {
+            f64::from(x as f32)
+        } else {
+            x
+        }
+    };
     let (max, min_pos, tiny) = if ty == ElemType::F32 {
         (
             f64::from(f32::MAX),
@@ -188,7 +195,14 @@ fn gen_column(rng: &mut Rng, name: &str, ty: ElemType, rows: usize, values: Valu
         if values == Values::SqlExact {
             max = max.min(i128::from(i64::MAX));
         }
-        let mut pool = vec![min, max, min + 1, max - 1, 0i128.clamp(min, max), 1.min(max)];
+        let mut pool = vec![
+            min,
+            max,
+            min + 1,
+            max - 1,
+            0i128.clamp(min, max),
+            1.min(max),
+        ];
         let hot: Vec<i128> = (0..3).map(|_| rng.int_in(min, max)).collect();
         pool.extend(hot);
         for _ in 0..rows {
@@ -260,18 +274,52 @@ fn gen_lit(rng: &mut Rng, col: &Column) -> Lit {
     let ty = col.ty;
     let from_row = !col.is_empty() && rng.chance(1, 2);
     if ty.is_float() {
+        // Binding rounds to the column type: float text parsed straight as the type
+        // (correctly rounded), integer literals by an `as` cast (nearest, ties to even).
+        let f32_col = ty == ElemType::F32;
+        match rng.below(8) {
+            0 => {
+                let v = if rng.chance(1, 2) {
+                    rng.int_in(-1000, 1000)
+                } else {
+                    rng.int_in(i64::MIN.into(), i64::MAX.into())
+                };
+                let x = if f32_col {
+                    f64::from(v as f32)
+                } else {
+                    v as f64
+                };
+                return Lit {
+                    val: Val::F(x),
+                    text: v.to_string(),
+                };
+            }
+            1 => {
+                // More digits than either type holds.
+                let sign = if rng.chance(1, 2) { "-" } else { "" };
+                let text = format!(
+                    "{sign}{}.{:09}{:09}",
+                    rng.below(100_000),
+                    rng.below(1_000_000_000),
+                    rng.below(1_000_000_000)
+                );
+                let x = if f32_col {
+                    f64::from(text.parse::<f32>().unwrap())
+                } else {
+                    text.parse::<f64>().unwrap()
+                };
+                return Lit {
+                    val: Val::F(x),
+                    text,
+                };
+            }
+            _ => {}
+        }
         let x = if from_row {
             match val(col, rng.below(col.len() as u64) as usize) {
                 Val::F(x) => x,
                 Val::I(_) => unreachable!("float column"),
             }
-        } else if rng.chance(1, 4) {
-            // An integer literal on a float column, small enough to be exact in f32.
-            let v = rng.int_in(-1000, 1000);
-            return Lit {
-                val: Val::F(v as f64),
-                text: v.to_string(),
-            };
         } else {
             random_float(rng, ty, &float_pool(ty))
         };
@@ -281,11 +329,31 @@ fn gen_lit(rng: &mut Rng, col: &Column) -> Lit {
             rng.pick(&["inf", "Inf", "+inf", "INF"]).to_string()
         } else if x == f64::NEG_INFINITY {
             rng.pick(&["-inf", "-Inf"]).to_string()
-        } else if ty == ElemType::F32 {
-            // Rust prints the shortest text that parses back to the same f32.
-            format!("{:?}", x as f32)
         } else {
-            format!("{x:?}")
+            // Rust prints the shortest text that parses back to the same value of the type.
+            let (plain, exp, exp_upper) = if f32_col {
+                let v = x as f32;
+                (format!("{v:?}"), format!("{v:e}"), format!("{v:E}"))
+            } else {
+                (format!("{x:?}"), format!("{x:e}"), format!("{x:E}"))
+            };
+            let mut t = match rng.below(4) {
+                0 => exp,
+                1 => exp_upper,
+                _ => plain,
+            };
+            if rng.chance(1, 3) {
+                // `.5` for `0.5`, `-.5` for `-0.5`.
+                t = t.replacen(
+                    "0.",
+                    ".",
+                    usize::from(t.starts_with("0.") || t.starts_with("-0.")),
+                );
+            }
+            if !t.starts_with('-') && rng.chance(1, 4) {
+                t.insert(0, '+');
+            }
+            t
         };
         return Lit {
             val: Val::F(x),
@@ -310,7 +378,10 @@ fn gen_lit(rng: &mut Rng, col: &Column) -> Lit {
         (true, 3) => format!("00{v}"),
         _ => v.to_string(),
     };
-    Lit { val: Val::I(v), text }
+    Lit {
+        val: Val::I(v),
+        text,
+    }
 }
 
 /// A random predicate over the table's columns with at most `depth` levels of and/or/not.
@@ -536,7 +607,11 @@ fn random_predicate(rng: &mut Rng, table: &Table) -> (String, Bound, Vec<u64>) {
     let bound = compile(&text, &table.schema())
         .unwrap_or_else(|e| panic!("`{text}` does not compile: {e}\n{}", e.caret()));
     let ids = oracle_ids(&p, table);
-    assert_eq!(naive_scan(table, &bound), ids, "naive_scan vs oracle for `{text}`");
+    assert_eq!(
+        naive_scan(table, &bound),
+        ids,
+        "naive_scan vs oracle for `{text}`"
+    );
     (text, bound, ids)
 }
 
@@ -589,6 +664,7 @@ fn scan_all_isas(table: &Table, row_start: u64, params: &ScanParams, io: &Engine
     first
 }
 
+/// Row ids from a scan's output region: little-endian `u32`, or `u64` when `wide`.
 fn decode_ids(out: &[u8], wide: bool) -> Vec<u64> {
     if wide {
         out.chunks_exact(8)
@@ -625,7 +701,12 @@ fn check_outputs(
         } else {
             rng.below((u64::from(u32::MAX) - table.rows() as u64) / 64) * 64
         };
-        let r = scan_all_isas(table, row_start, &params(ScanOutput::RowIds, global, wide), &io);
+        let r = scan_all_isas(
+            table,
+            row_start,
+            &params(ScanOutput::RowIds, global, wide),
+            &io,
+        );
         let shift = if global { row_start } else { 0 };
         let want: Vec<u64> = expected.iter().map(|i| i + shift).collect();
         prop_assert_eq!(
@@ -660,7 +741,12 @@ fn check_outputs(
                 cols.push(c);
             }
         }
-        let r = scan_all_isas(table, 0, &params(ScanOutput::Project(cols.clone()), false, false), &io);
+        let r = scan_all_isas(
+            table,
+            0,
+            &params(ScanOutput::Project(cols.clone()), false, false),
+            &io,
+        );
         let mut want = Vec::new();
         for &i in expected {
             for &c in &cols {
@@ -733,7 +819,10 @@ fn output_is_the_same_for_any_thread_count() {
         let runs: Vec<ScanResult> = [1, 2, 4]
             .into_iter()
             .map(|n| {
-                let pool = rayon::ThreadPoolBuilder::new().num_threads(n).build().unwrap();
+                let pool = rayon::ThreadPoolBuilder::new()
+                    .num_threads(n)
+                    .build()
+                    .unwrap();
                 pool.install(|| scan_partition(Isa::detect(), &table, 4096, &params, &io))
             })
             .collect();
@@ -857,7 +946,12 @@ proptest! {
 #[test]
 fn a_word_shared_by_two_chunks_is_counted_once() {
     let rows = CHUNK_ROWS + 1;
-    let col = Column::new("k", ElemType::U32, ColumnData::U32((0..rows as u32).collect())).unwrap();
+    let col = Column::new(
+        "k",
+        ElemType::U32,
+        ColumnData::U32((0..rows as u32).collect()),
+    )
+    .unwrap();
     let table = Table::new("t", vec![col]).unwrap();
     let io = EngineIo {
         engine: 0,
@@ -875,9 +969,19 @@ fn a_word_shared_by_two_chunks_is_counted_once() {
         wide_ids: false,
     };
     let r = scan_partition(Isa::detect(), &table, 0, &params, &io);
-    let read = r.ledger.get(&Key::device(0, PHASE, 0, Direction::Read)).unwrap();
+    let read = r
+        .ledger
+        .get(&Key::device(0, PHASE, 0, Direction::Read))
+        .unwrap();
     let bytes = 4 * rows as u64;
-    assert_eq!(read, Traffic { bytes, words: bytes.div_ceil(12), rows: rows as u64 });
+    assert_eq!(
+        read,
+        Traffic {
+            bytes,
+            words: bytes.div_ceil(12),
+            rows: rows as u64
+        }
+    );
 }
 
 /// Row ids SQLite gives for `condition` over `table`, stored with an explicit `id`.
@@ -892,14 +996,19 @@ fn sqlite_ids(table: &Table, condition: &str) -> Vec<u64> {
         })
         .collect();
     db.execute(
-        &format!("CREATE TABLE t (id INTEGER PRIMARY KEY, {})", cols.join(", ")),
+        &format!(
+            "CREATE TABLE t (id INTEGER PRIMARY KEY, {})",
+            cols.join(", ")
+        ),
         [],
     )
     .unwrap();
     let marks = vec!["?"; table.columns.len() + 1].join(", ");
     db.execute_batch("BEGIN").unwrap();
     {
-        let mut insert = db.prepare(&format!("INSERT INTO t VALUES ({marks})")).unwrap();
+        let mut insert = db
+            .prepare(&format!("INSERT INTO t VALUES ({marks})"))
+            .unwrap();
         for r in 0..table.rows() {
             let mut row = vec![SqlValue::Integer(r as i64)];
             for c in &table.columns {
@@ -1028,7 +1137,12 @@ fn planted_float_corners_occur() {
     for ty in [ElemType::F32, ElemType::F64] {
         let g = select_gen(ty, 0.3, -2.5, 7.25, -100.0, 100.0);
         let rows = 3 * weir::gen::rng::BLOCK_ROWS;
-        let tg = TableGen { table: "fc".into(), rows, seed: 11, shape: Shape::Columns(vec![g]) };
+        let tg = TableGen {
+            table: "fc".into(),
+            rows,
+            seed: 11,
+            shape: Shape::Columns(vec![g]),
+        };
         let table = tg.generate(0..rows);
         let col = &table.columns[0];
         let has = |want: f64| {
@@ -1074,20 +1188,39 @@ fn planted_float_corners_occur() {
     }
 }
 
-/// Corners must be planted in a table shorter than one generator block too: `corners: true`
-/// promises the bounds, their neighbours and the type's extremes in the column.
-#[test]
-fn planted_corners_occur_in_a_table_shorter_than_a_block() {
+/// The integer corners of a `u16` select column over `[0, 65535]` matching `[1000, 2000)`
+/// (999, 1000, 1999, 2000, 0 and 65535) that a generated table of `rows` rows lacks.
+fn missing_u16_corners(table: &str, seed: u64, rows: u64) -> Vec<i128> {
     let g = select_gen(ElemType::U16, 0.25, 1000.0, 2000.0, 0.0, 65535.0);
-    let rows = 1000;
-    let tg = TableGen { table: "small".into(), rows, seed: 3, shape: Shape::Columns(vec![g]) };
-    let table = tg.generate(0..rows);
-    let col = &table.columns[0];
-    let missing: Vec<i128> = [999, 1000, 1999, 2000, 0, 65535]
+    let tg = TableGen {
+        table: table.into(),
+        rows,
+        seed,
+        shape: Shape::Columns(vec![g]),
+    };
+    let t = tg.generate(0..rows);
+    let col = &t.columns[0];
+    [999, 1000, 1999, 2000, 0, 65535]
         .into_iter()
         .filter(|&c| !(0..col.len()).any(|r| matches!(val(col, r), Val::I(v) if v == c)))
-        .collect();
-    assert!(missing.is_empty(), "corners {missing:?} missing from a {rows}-row table");
+        .collect()
+}
+
+/// Corners must be planted in a table shorter than one generator block too: `corners: true`
+/// promises the bounds, their neighbours and the type's extremes in the column, but the
+/// positions are drawn over the whole 4096-row block, most of them past row 1000.
+#[test]
+fn planted_corners_occur_in_a_table_shorter_than_a_block() {
+    assert_eq!(missing_u16_corners("small", 3, 1000), Vec::<i128>::new());
+}
+
+/// Corners are planted at independently drawn positions of a block, so two can land on the
+/// same row and the later one erases the earlier: with seed 1116 the table below, one
+/// whole block, loses the corner 999 (lo − 1).
+#[test]
+fn planted_corners_do_not_overwrite_each_other() {
+    let rows = weir::gen::rng::BLOCK_ROWS;
+    assert_eq!(missing_u16_corners("full", 1116, rows), Vec::<i128>::new());
 }
 
 /// Each column's byte form.
@@ -1115,11 +1248,64 @@ fn mixed_gen(seed: u64, rows: u64) -> TableGen {
         rows,
         seed,
         shape: Shape::Columns(vec![
-            col("s", ElemType::U32, Dist::Select { selectivity: 0.1, lo: 10.0, hi: 20.0, min: 0.0, max: 1e6, skew: Skew::Zipf { theta: 0.9, distinct: 50 } }, true),
-            col("n", ElemType::F32, Dist::Normal { mean: 3.0, sd: 2.0, min: -10.0, max: 10.0 }, false),
-            col("u", ElemType::U4, Dist::Uniform { min: 0.0, max: 15.0 }, false),
-            col("q", ElemType::I64, Dist::Sequence { start: -5.0, step: 3.0 }, false),
-            col("f", ElemType::F64, Dist::Select { selectivity: 0.5, lo: -1.0, hi: 1.0, min: -5.0, max: 5.0, skew: Skew::Uniform }, true),
+            col(
+                "s",
+                ElemType::U32,
+                Dist::Select {
+                    selectivity: 0.1,
+                    lo: 10.0,
+                    hi: 20.0,
+                    min: 0.0,
+                    max: 1e6,
+                    skew: Skew::Zipf {
+                        theta: 0.9,
+                        distinct: 50,
+                    },
+                },
+                true,
+            ),
+            col(
+                "n",
+                ElemType::F32,
+                Dist::Normal {
+                    mean: 3.0,
+                    sd: 2.0,
+                    min: -10.0,
+                    max: 10.0,
+                },
+                false,
+            ),
+            col(
+                "u",
+                ElemType::U4,
+                Dist::Uniform {
+                    min: 0.0,
+                    max: 15.0,
+                },
+                false,
+            ),
+            col(
+                "q",
+                ElemType::I64,
+                Dist::Sequence {
+                    start: -5.0,
+                    step: 3.0,
+                },
+                false,
+            ),
+            col(
+                "f",
+                ElemType::F64,
+                Dist::Select {
+                    selectivity: 0.5,
+                    lo: -1.0,
+                    hi: 1.0,
+                    min: -5.0,
+                    max: 5.0,
+                    skew: Skew::Uniform,
+                },
+                true,
+            ),
         ]),
     }
 }
@@ -1148,7 +1334,10 @@ fn generated_rows_do_not_depend_on_the_thread_count() {
     let runs: Vec<Table> = [1, 2]
         .into_iter()
         .map(|n| {
-            let pool = rayon::ThreadPoolBuilder::new().num_threads(n).build().unwrap();
+            let pool = rayon::ThreadPoolBuilder::new()
+                .num_threads(n)
+                .build()
+                .unwrap();
             pool.install(|| tg.generate(0..13_000))
         })
         .collect();
@@ -1173,9 +1362,36 @@ fn generated_bytes_are_pinned() {
         rows: 1000,
         seed: 42,
         shape: Shape::Columns(vec![
-            col("sel", ElemType::U32, Dist::Select { selectivity: 0.2, lo: 100.0, hi: 200.0, min: 0.0, max: 1000.0, skew: Skew::Uniform }),
-            col("norm", ElemType::F32, Dist::Normal { mean: 0.0, sd: 1.0, min: -4.0, max: 4.0 }),
-            col("uni", ElemType::U16, Dist::Uniform { min: 0.0, max: 65535.0 }),
+            col(
+                "sel",
+                ElemType::U32,
+                Dist::Select {
+                    selectivity: 0.2,
+                    lo: 100.0,
+                    hi: 200.0,
+                    min: 0.0,
+                    max: 1000.0,
+                    skew: Skew::Uniform,
+                },
+            ),
+            col(
+                "norm",
+                ElemType::F32,
+                Dist::Normal {
+                    mean: 0.0,
+                    sd: 1.0,
+                    min: -4.0,
+                    max: 4.0,
+                },
+            ),
+            col(
+                "uni",
+                ElemType::U16,
+                Dist::Uniform {
+                    min: 0.0,
+                    max: 65535.0,
+                },
+            ),
         ]),
     };
     let table = tg.generate(0..1000);

@@ -30,9 +30,11 @@ const LINE_WORDS: usize = (LINE_BYTES / 8) as usize;
 /// buffers, so that timer and thread wake-up overhead stay small against the run.
 const MIN_BYTES_PER_SAMPLE: u64 = 64 << 20;
 
-/// Independent u64 accumulators in the read loop: 8 zmm / 16 ymm registers' worth,
-/// enough loads in flight that the loop waits on memory, not on the adds.
-const READ_LANES: usize = 64;
+/// The read loop walks each thread's slice as this many interleaved contiguous
+/// streams: on the x86_64 server parts measured, one core reaches about 10% more
+/// DRAM bandwidth that way than with a single stream, as the hardware prefetcher
+/// keeps more lines in flight.
+const READ_STREAMS: usize = 4;
 
 /// Errors from calibration and from loading a saved calibration.
 #[derive(Debug, thiserror::Error)]
@@ -108,9 +110,6 @@ pub struct BandwidthPoint {
     pub threads: usize,
     /// Bytes read per second by a wrapping-sum reduction over the buffer.
     pub read_gbps: f64,
-    /// Instruction set of the read loop that reached `read_gbps` (every available
-    /// one is tried: on some parts a narrower vector streams faster).
-    pub read_isa: String,
     /// Bytes written per second by filling the buffer with ordinary (temporal)
     /// stores. The read-for-ownership traffic this causes is not counted.
     pub write_gbps: f64,
@@ -130,8 +129,8 @@ pub struct Calibration {
     pub runs: usize,
     /// CPU model name from `/proc/cpuinfo`, or "unknown".
     pub cpu: String,
-    /// Widest vector instruction set detected at run time ("avx512", "avx2" or
-    /// "baseline"); the write loop uses it and the read loop tries it and narrower.
+    /// Vector instruction set the read and write loops were compiled for: the
+    /// widest detected at run time, "avx512", "avx2" or "baseline".
     pub isa: String,
     /// One point per thread count, ascending.
     pub points: Vec<BandwidthPoint>,
@@ -195,8 +194,7 @@ pub fn calibrate(
         .for_each(|(i, w)| *w = pattern(i));
     let passes = MIN_BYTES_PER_SAMPLE.div_ceil(params.bytes).max(1) as usize;
     let sample_bytes = params.bytes as f64 * passes as f64;
-    let isas = Isa::available();
-    let widest = isas[0];
+    let isa = Isa::available()[0];
 
     let total = params.max_threads * 3;
     let mut done = 0;
@@ -213,26 +211,15 @@ pub fn calibrate(
         let ranges = split_lines(words, threads);
         let best_seconds = |f: &mut dyn FnMut()| summarize(&time_runs(1, params.runs, f)).min_s;
 
-        let (read_isa, read_s) = {
+        let read_s = {
             let src_parts = slices(src.as_slice(), &ranges);
-            isas.iter()
-                .map(|&isa| {
-                    let secs = best_seconds(&mut || {
-                        pool.broadcast(|ctx| {
-                            for _ in 0..passes {
-                                black_box(read_sum(isa, black_box(src_parts[ctx.index()])));
-                            }
-                        });
-                    });
-                    (isa, secs)
-                })
-                .fold((widest, f64::INFINITY), |best, cur| {
-                    if cur.1 < best.1 {
-                        cur
-                    } else {
-                        best
+            best_seconds(&mut || {
+                pool.broadcast(|ctx| {
+                    for _ in 0..passes {
+                        black_box(read_sum(isa, black_box(src_parts[ctx.index()])));
                     }
-                })
+                });
+            })
         };
         done += 1;
         progress(done, total);
@@ -243,7 +230,7 @@ pub fn calibrate(
                 pool.broadcast(|ctx| {
                     let mut part = lock(&dst_parts[ctx.index()]);
                     for pass in 0..passes {
-                        fill(widest, black_box(&mut part[..]), pattern(pass));
+                        fill(isa, black_box(&mut part[..]), pattern(pass));
                     }
                 });
             })
@@ -269,7 +256,6 @@ pub fn calibrate(
         points.push(BandwidthPoint {
             threads,
             read_gbps: sample_bytes / read_s / 1e9,
-            read_isa: read_isa.name().to_string(),
             write_gbps: sample_bytes / write_s / 1e9,
             copy_gbps: 2.0 * sample_bytes / copy_s / 1e9,
         });
@@ -280,7 +266,7 @@ pub fn calibrate(
         bytes: params.bytes,
         runs: params.runs,
         cpu: cpu_model(),
-        isa: widest.name().to_string(),
+        isa: isa.name().to_string(),
         points,
     })
 }
@@ -458,23 +444,32 @@ trait Kernel {
     fn run(self) -> Self::Output;
 }
 
-/// Wrapping sum of every word.
-struct ReadSum<'a>(&'a [u64]);
+/// Wrapping sum of every word, over [`READ_STREAMS`] interleaved streams with
+/// `LANES` independent accumulators each, so that many loads are in flight and
+/// the loop waits on memory rather than on the adds.
+struct ReadSum<'a, const LANES: usize>(&'a [u64]);
 
-impl Kernel for ReadSum<'_> {
+impl<const LANES: usize> Kernel for ReadSum<'_, LANES> {
     type Output = u64;
 
     #[inline(always)]
     fn run(self) -> u64 {
-        let mut acc = [0u64; READ_LANES];
-        let mut blocks = self.0.chunks_exact(READ_LANES);
-        for block in &mut blocks {
-            for (a, &w) in acc.iter_mut().zip(block) {
-                *a = a.wrapping_add(w);
+        let per_stream = self.0.len() / (READ_STREAMS * LANES) * LANES;
+        let (body, tail) = self.0.split_at(per_stream * READ_STREAMS);
+        let streams: [&[u64]; READ_STREAMS] =
+            std::array::from_fn(|k| &body[k * per_stream..(k + 1) * per_stream]);
+        let mut acc = [[0u64; LANES]; READ_STREAMS];
+        for start in (0..per_stream).step_by(LANES) {
+            for (lanes, stream) in acc.iter_mut().zip(&streams) {
+                for (a, &w) in lanes.iter_mut().zip(&stream[start..start + LANES]) {
+                    *a = a.wrapping_add(w);
+                }
             }
         }
-        let tail = blocks.remainder().iter();
-        acc.iter().chain(tail).fold(0, |s, &w| s.wrapping_add(w))
+        let tail_sum = tail.iter().fold(0u64, |s, &w| s.wrapping_add(w));
+        acc.into_iter()
+            .flatten()
+            .fold(tail_sum, |s, w| s.wrapping_add(w))
     }
 }
 
@@ -490,8 +485,16 @@ impl Kernel for Fill<'_> {
     }
 }
 
+/// Dispatches the read loop with accumulators filling the vector register file
+/// (32 zmm, 16 ymm, 16 xmm) across the streams; measured best on x86_64.
 fn read_sum(isa: Isa, data: &[u64]) -> u64 {
-    run_kernel(isa, ReadSum(data))
+    match isa {
+        #[cfg(target_arch = "x86_64")]
+        Isa::Avx512 => run_kernel(isa, ReadSum::<64>(data)),
+        #[cfg(target_arch = "x86_64")]
+        Isa::Avx2 => run_kernel(isa, ReadSum::<16>(data)),
+        Isa::Baseline => run_kernel(isa, ReadSum::<8>(data)),
+    }
 }
 
 fn fill(isa: Isa, data: &mut [u64], value: u64) {
@@ -546,12 +549,10 @@ mod tests {
         assert_eq!(cal.isa, Isa::available()[0].name());
         let threads: Vec<usize> = cal.points.iter().map(|p| p.threads).collect();
         assert_eq!(threads, [1, 2]);
-        let names: Vec<&str> = Isa::available().iter().map(|i| i.name()).collect();
         for p in &cal.points {
             for rate in [p.read_gbps, p.write_gbps, p.copy_gbps] {
                 assert!(rate.is_finite() && rate > 0.0, "{p:?}");
             }
-            assert!(names.contains(&p.read_isa.as_str()), "{p:?}");
         }
         let expected: Vec<(usize, usize)> = (0..=6).map(|d| (d, 6)).collect();
         assert_eq!(calls, expected);
@@ -568,7 +569,6 @@ mod tests {
         let point = |threads, read_gbps| BandwidthPoint {
             threads,
             read_gbps,
-            read_isa: "avx2".to_string(),
             write_gbps: 1.0,
             copy_gbps: 2.0,
         };
@@ -662,14 +662,19 @@ mod tests {
 
     #[test]
     fn read_kernel_matches_plain_sum_on_every_isa() {
-        // Odd length and every start offset within a line exercise the vector
-        // body, the tail, and unaligned starts.
-        let data: Vec<u64> = (0..READ_LANES * 5 + 13).map(pattern).collect();
+        // Lengths below one block (all tail), exactly whole blocks (no tail) and
+        // between, each from every start offset within a line, so the streams,
+        // the tail and unaligned starts are all checked against a plain sum.
+        let block = READ_STREAMS * 64;
+        let data: Vec<u64> = (0..block * 3 + 13 + LINE_WORDS).map(pattern).collect();
         for isa in Isa::available() {
-            for start in 0..LINE_WORDS {
-                let part = &data[start..];
-                let plain = part.iter().fold(0u64, |s, &w| s.wrapping_add(w));
-                assert_eq!(read_sum(isa, part), plain, "{} from {start}", isa.name());
+            for len in [0, 1, block - 1, block, block * 3, block * 3 + 13] {
+                for start in 0..LINE_WORDS {
+                    let part = &data[start..start + len];
+                    let plain = part.iter().fold(0u64, |s, &w| s.wrapping_add(w));
+                    let got = read_sum(isa, part);
+                    assert_eq!(got, plain, "{} len {len} from {start}", isa.name());
+                }
             }
         }
     }
@@ -677,7 +682,7 @@ mod tests {
     #[test]
     fn fill_kernel_writes_every_word_on_every_isa() {
         for isa in Isa::available() {
-            let mut data = vec![0u64; READ_LANES * 3 + 5];
+            let mut data = vec![0u64; 64 * 3 + 5];
             fill(isa, &mut data[1..], 7);
             assert_eq!(data[0], 0, "{}", isa.name());
             assert!(data[1..].iter().all(|&w| w == 7), "{}", isa.name());

@@ -161,9 +161,16 @@ impl ColumnGen {
         v
     }
 
-    /// Rows `rows` (global row numbers) of the column, generated in parallel over groups
-    /// of blocks (values depend only on their block, so the split does not matter).
-    pub fn generate(&self, seed: u64, table: &str, rows: std::ops::Range<u64>) -> Column {
+    /// Rows `rows` (global row numbers) of the column of a table of `total` rows, generated
+    /// in parallel over groups of blocks (values depend only on their block and the table
+    /// size, so the split does not matter).
+    pub fn generate(
+        &self,
+        seed: u64,
+        table: &str,
+        total: u64,
+        rows: std::ops::Range<u64>,
+    ) -> Column {
         const GROUP: u64 = 64 * BLOCK_ROWS;
         let starts: Vec<u64> = std::iter::once(rows.start)
             .chain((rows.start / GROUP + 1..rows.end.div_ceil(GROUP)).map(|g| g * GROUP))
@@ -173,7 +180,7 @@ impl ColumnGen {
             .enumerate()
             .map(|(i, &a)| {
                 let b = starts.get(i + 1).copied().unwrap_or(rows.end);
-                self.generate_range(seed, table, a..b.max(a))
+                self.generate_range(seed, table, total, a..b.max(a))
             })
             .collect();
         let mut data = ColumnData::with_capacity(self.ty, (rows.end - rows.start) as usize);
@@ -183,7 +190,13 @@ impl ColumnGen {
         Column::new(&self.name, self.ty, data).expect("generated values fit their type")
     }
 
-    fn generate_range(&self, seed: u64, table: &str, rows: std::ops::Range<u64>) -> ColumnData {
+    fn generate_range(
+        &self,
+        seed: u64,
+        table: &str,
+        total: u64,
+        rows: std::ops::Range<u64>,
+    ) -> ColumnData {
         let mut data = ColumnData::with_capacity(self.ty, (rows.end - rows.start) as usize);
         let zipf = match &self.dist {
             Dist::Select {
@@ -212,8 +225,16 @@ impl ColumnGen {
             block_vals.clear();
             block_vals
                 .extend((b0..b0 + BLOCK_ROWS).map(|r| self.draw(&mut s, r, zipf.as_ref(), &ip)));
-            for c in &corners {
-                let at = s.int_in(0, BLOCK_ROWS as i128 - 1) as usize;
+            // Corners go to distinct rows that exist: the last block of a table may be
+            // short, and a corner must not overwrite another.
+            let len = total.saturating_sub(b0).min(BLOCK_ROWS) as usize;
+            let mut taken: Vec<usize> = Vec::with_capacity(corners.len());
+            for c in corners.iter().take(len) {
+                let mut at = s.int_in(0, len as i128 - 1) as usize;
+                while taken.contains(&at) {
+                    at = (at + 1) % len;
+                }
+                taken.push(at);
                 block_vals[at] = *c;
             }
             let lo = rows.start.max(b0) - b0;

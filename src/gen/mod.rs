@@ -56,7 +56,7 @@ impl TableGen {
             Shape::Columns(cols) => {
                 let columns = cols
                     .par_iter()
-                    .map(|c| c.generate(self.seed, &self.table, rows.clone()))
+                    .map(|c| c.generate(self.seed, &self.table, self.rows, rows.clone()))
                     .collect();
                 Table::new(&self.table, columns).expect("generated columns have equal length")
             }

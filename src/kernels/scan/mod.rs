@@ -26,8 +26,8 @@ use crate::kernels::predicate::{Bound, Scalar, Test};
 use crate::ledger::{Cursor, Direction, Key, Ledger, Phase, Traffic};
 use crate::table::{byte_len, column_bytes, ElemType, Table};
 
-/// Rows per chunk of work: a multiple of 64 (one mask word) and of every word granule up
-/// to 4096-bit words, small enough that a chunk's masks stay in L1.
+/// Rows per chunk of work before rounding to whole words (see `chunk_rows`): small
+/// enough that a chunk's masks stay in L1, large enough to amortise scheduling.
 pub const CHUNK_ROWS: usize = 16384;
 
 /// The scan's phase name in the ledger.
@@ -143,10 +143,11 @@ pub fn scan_partition(
     let rows = table.rows();
     let cols = touched_columns(params);
     let id_base = if params.global_ids { row_start } else { 0 };
-    let chunks: Vec<ChunkOut> = (0..rows.div_ceil(CHUNK_ROWS))
+    let chunk = chunk_rows(table, &cols, io);
+    let chunks: Vec<ChunkOut> = (0..rows.div_ceil(chunk))
         .into_par_iter()
         .map_init(Worker::default, |w, c| {
-            let r = c * CHUNK_ROWS..((c + 1) * CHUNK_ROWS).min(rows);
+            let r = c * chunk..((c + 1) * chunk).min(rows);
             w.masks.resize(r.len().div_ceil(64), 0);
             let masks = &mut w.masks[..r.len().div_ceil(64)];
             mask::eval(
@@ -203,6 +204,23 @@ pub fn scan_partition(
     ledger.add(write_key, w.traffic);
     ledger.add(write_key, cw.traffic);
     ScanResult { out, count, ledger }
+}
+
+/// Rows per chunk: [`CHUNK_ROWS`] rounded up to a multiple of 64 (one mask word) and of
+/// the rows that fill whole memory words of every image streamed, so every chunk starts on
+/// a word boundary and per-chunk word counts add up to the partition's.
+fn chunk_rows(table: &Table, cols: &[usize], io: &EngineIo) -> usize {
+    let word_bits = (io.word_bytes * 8) as u32;
+    let g = if io.row_base.is_some() {
+        let bits: Vec<u32> = table.columns.iter().map(|c| c.ty.bits()).collect();
+        crate::layout::granule(word_bits, &bits, true)
+    } else {
+        let bits: Vec<u32> = cols.iter().map(|&c| table.columns[c].ty.bits()).collect();
+        crate::layout::granule(word_bits, &bits, false)
+    } as usize;
+    // lcm(64, g): 64 is a power of two, so the gcd is the common power of two.
+    let unit = g * 64 / (1usize << g.trailing_zeros().min(6));
+    CHUNK_ROWS.div_ceil(unit) * unit
 }
 
 /// The columns an engine streams: those the predicate reads and those it projects
