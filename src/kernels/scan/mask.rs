@@ -6,7 +6,7 @@
 //! chosen at run time, so users never need `target-cpu=native`.
 
 use crate::kernels::predicate::{Bound, CmpOp, Scalar, Test};
-use crate::table::{ColumnData, Table};
+use crate::table::Table;
 
 /// The instruction set the mask loops run with.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -189,20 +189,74 @@ pub trait Simd: Lane {}
 #[cfg(not(target_arch = "x86_64"))]
 impl<T: Lane> Simd for T {}
 
+/// Buckets [`visit`] reports words in: the interleaved runs of the AVX-512 walk and its
+/// remainder, or a single bucket elsewhere.
+#[cfg(target_arch = "x86_64")]
+pub const BUCKETS: usize = super::avx512::STREAMS + 1;
+/// Buckets [`visit`] reports words in.
+#[cfg(not(target_arch = "x86_64"))]
+pub const BUCKETS: usize = 1;
+
+/// The portable mask of the last, partial word of `xs` (rows from `done`, fewer than 64).
+fn tail_word<T: Lane>(xs: &[T], done: usize, test: &Test) -> u64 {
+    let mut m = [0u64];
+    leaf_portable(&xs[done..], test, &mut m);
+    m[0]
+}
+
+/// Calls `sink(bucket, i, mask)` for every 64-row word of `xs` under `test` (buckets
+/// joined in order cover the words in order).
+fn leaf_visit<T: Simd, S: FnMut(usize, usize, u64)>(isa: Isa, xs: &[T], test: &Test, sink: &mut S) {
+    #[cfg(target_arch = "x86_64")]
+    if isa == Isa::Avx512 {
+        // SAFETY: `Isa::Avx512` is only produced by `detect` after checking the features.
+        let done = unsafe { super::avx512::leaf(xs, test, sink) };
+        if done < xs.len() {
+            sink(BUCKETS - 1, done / 64, tail_word(xs, done, test));
+        }
+        return;
+    }
+    let mut masks = vec![0u64; xs.len().div_ceil(64)];
+    leaf(isa, xs, test, &mut masks);
+    for (i, &m) in masks.iter().enumerate() {
+        sink(0, i, m);
+    }
+}
+
 fn leaf<T: Simd>(isa: Isa, xs: &[T], test: &Test, out: &mut [u64]) {
     match isa {
         #[cfg(target_arch = "x86_64")]
-        Isa::Avx512 => {
-            // SAFETY: `Isa::Avx512` is only produced by `detect` after checking the features.
-            let done = unsafe { super::avx512::leaf(xs, test, out) };
-            if done < xs.len() {
-                leaf_portable(&xs[done..], test, &mut out[done / 64..]);
-            }
-        }
+        Isa::Avx512 => leaf_visit(isa, xs, test, &mut |_, i, m| out[i] = m),
         #[cfg(target_arch = "x86_64")]
-        // SAFETY: as above, for AVX2.
+        // SAFETY: `Isa::Avx2` is only produced by `detect` after checking the feature.
         Isa::Avx2 => unsafe { leaf_avx2(xs, test, out) },
         _ => leaf_portable(xs, test, out),
+    }
+}
+
+/// Calls `sink(bucket, i, mask)` for every 64-row word i of rows `rows` under `pred`;
+/// within a bucket words ascend, and buckets `0..BUCKETS` in order cover the words in
+/// order. A single comparison on AVX-512 streams from memory straight to the sink, so
+/// matches are used while the data is in flight; other predicates are evaluated into
+/// `masks` first and reported in order.
+pub fn visit<S: FnMut(usize, usize, u64)>(
+    isa: Isa,
+    pred: &Bound,
+    table: &Table,
+    rows: std::ops::Range<usize>,
+    masks: &mut Vec<u64>,
+    scratch: &mut Scratch,
+    sink: &mut S,
+) {
+    if let (Bound::Leaf { col, test }, Isa::Avx512) = (pred, isa) {
+        let r = rows;
+        return crate::with_column_data!(&table.columns[*col].data, v => leaf_visit(isa, &v[r], test, sink));
+    }
+    masks.resize(rows.len().div_ceil(64), 0);
+    let n = rows.len().div_ceil(64);
+    eval(isa, pred, table, rows, &mut masks[..n], scratch);
+    for (i, &m) in masks[..n].iter().enumerate() {
+        sink(0, i, m);
     }
 }
 
@@ -236,20 +290,8 @@ fn eval_at(
 ) {
     match pred {
         Bound::Leaf { col, test } => {
-            let data = &table.columns[*col].data;
             let r = rows.clone();
-            match data {
-                ColumnData::U8(v) => leaf(isa, &v[r], test, out),
-                ColumnData::U16(v) => leaf(isa, &v[r], test, out),
-                ColumnData::U32(v) => leaf(isa, &v[r], test, out),
-                ColumnData::U64(v) => leaf(isa, &v[r], test, out),
-                ColumnData::I8(v) => leaf(isa, &v[r], test, out),
-                ColumnData::I16(v) => leaf(isa, &v[r], test, out),
-                ColumnData::I32(v) => leaf(isa, &v[r], test, out),
-                ColumnData::I64(v) => leaf(isa, &v[r], test, out),
-                ColumnData::F32(v) => leaf(isa, &v[r], test, out),
-                ColumnData::F64(v) => leaf(isa, &v[r], test, out),
-            }
+            crate::with_column_data!(&table.columns[*col].data, v => leaf(isa, &v[r], test, out))
         }
         Bound::Not(inner) => {
             eval_at(isa, inner, table, rows.clone(), out, scratch, depth);

@@ -26,9 +26,13 @@ use crate::kernels::predicate::{Bound, Scalar, Test};
 use crate::ledger::{Cursor, Direction, Key, Ledger, Phase, Traffic};
 use crate::table::{byte_len, column_bytes, ElemType, Table};
 
-/// Rows per chunk of work before rounding to whole words (see `chunk_rows`): small
-/// enough that a chunk's masks stay in L1, large enough to amortise scheduling.
-pub const CHUNK_ROWS: usize = 16384;
+/// The most rows in one chunk of work (before rounding to whole words, see
+/// `chunk_rows`): long enough (4 MiB of `u32`) that each interleaved run of a mask visit
+/// streams for a while. Smaller partitions use smaller chunks so every thread has work.
+pub const CHUNK_ROWS: usize = 1 << 20;
+
+/// The fewest rows in one chunk, so that per-chunk work stays small beside the scan.
+pub const MIN_CHUNK_ROWS: usize = 1 << 16;
 
 /// The scan's phase name in the ledger.
 pub const PHASE: Phase = Phase::single("scan");
@@ -120,16 +124,119 @@ pub struct ScanResult {
 }
 
 struct ChunkOut {
-    out: Vec<u8>,
+    /// Output pieces in row order (one per bucket), joined once at the end.
+    out: Vec<Vec<u8>>,
     count: u64,
     read: Traffic,
 }
 
-/// A worker's reusable buffers: the chunk's mask words and the predicate's temporaries.
+/// A worker's reusable buffers: mask words, the predicate's temporaries and one output
+/// per bucket of a mask visit.
 #[derive(Default)]
 struct Worker {
     masks: Vec<u64>,
     scratch: mask::Scratch,
+    buckets: [Vec<u8>; mask::BUCKETS],
+}
+
+/// Scans rows `r` of a partition: returns the chunk's output pieces in row order and its
+/// match count. Matches are written as the mask words arrive, into one output per bucket
+/// of the visit (buckets cover the rows in order).
+fn scan_chunk(
+    isa: Isa,
+    table: &Table,
+    params: &ScanParams,
+    r: std::ops::Range<usize>,
+    id_base: u64,
+    w: &mut Worker,
+) -> (Vec<Vec<u8>>, u64) {
+    let mut count = 0u64;
+    let base = id_base + r.start as u64;
+    let Worker {
+        masks,
+        scratch,
+        buckets,
+    } = w;
+    buckets.iter_mut().for_each(Vec::clear);
+    match &params.output {
+        ScanOutput::Bitmap => {
+            let mut words = vec![0u64; r.len().div_ceil(64)];
+            mask::visit(
+                isa,
+                &params.predicate,
+                table,
+                r.clone(),
+                masks,
+                scratch,
+                &mut |_, i, m| {
+                    count += u64::from(m.count_ones());
+                    words[i] = m;
+                },
+            );
+            let mut out: Vec<u8> = words.iter().flat_map(|m| m.to_le_bytes()).collect();
+            out.truncate(r.len().div_ceil(8));
+            return (vec![out], count);
+        }
+        ScanOutput::RowIds if params.wide_ids => {
+            mask::visit(
+                isa,
+                &params.predicate,
+                table,
+                r.clone(),
+                masks,
+                scratch,
+                &mut |k, i, m| {
+                    count += u64::from(m.count_ones());
+                    for_each_match(&[m], |j| {
+                        buckets[k].extend_from_slice(&(base + 64 * i as u64 + j).to_le_bytes())
+                    });
+                },
+            );
+        }
+        ScanOutput::RowIds => {
+            // The job chooses u32 ids only when every row id fits.
+            mask::visit(
+                isa,
+                &params.predicate,
+                table,
+                r.clone(),
+                masks,
+                scratch,
+                &mut |k, i, m| {
+                    count += u64::from(m.count_ones());
+                    for_each_match(&[m], |j| {
+                        buckets[k]
+                            .extend_from_slice(&((base + 64 * i as u64 + j) as u32).to_le_bytes())
+                    });
+                },
+            );
+        }
+        ScanOutput::Project(cols) => {
+            mask::visit(
+                isa,
+                &params.predicate,
+                table,
+                r.clone(),
+                masks,
+                scratch,
+                &mut |k, i, m| {
+                    count += u64::from(m.count_ones());
+                    for_each_match(&[m], |j| {
+                        let row = r.start + 64 * i + j as usize;
+                        for &c in cols {
+                            column_bytes(&table.columns[c], row..row + 1, &mut buckets[k]);
+                        }
+                    });
+                },
+            );
+        }
+    }
+    let pieces = buckets
+        .iter_mut()
+        .filter(|b| !b.is_empty())
+        .map(std::mem::take)
+        .collect();
+    (pieces, count)
 }
 
 /// Scans one partition (`table` holds just its rows; `row_start` is its first global row).
@@ -148,17 +255,7 @@ pub fn scan_partition(
         .into_par_iter()
         .map_init(Worker::default, |w, c| {
             let r = c * chunk..((c + 1) * chunk).min(rows);
-            w.masks.resize(r.len().div_ceil(64), 0);
-            let masks = &mut w.masks[..r.len().div_ceil(64)];
-            mask::eval(
-                isa,
-                &params.predicate,
-                table,
-                r.clone(),
-                masks,
-                &mut w.scratch,
-            );
-            let count = masks.iter().map(|m| u64::from(m.count_ones())).sum();
+            let (out, count) = scan_chunk(isa, table, params, r.clone(), id_base, w);
             let mut read = Traffic::default();
             let (start, len) = (r.start as u64, r.len() as u64);
             if let Some(base) = io.row_base {
@@ -180,14 +277,13 @@ pub fn scan_partition(
                     read += cur.traffic;
                 }
             }
-            let out = chunk_records(table, params, masks, r.clone(), id_base, count);
             ChunkOut { out, count, read }
         })
         .collect();
     let count = chunks.iter().map(|c| c.count).sum();
-    let mut out = Vec::with_capacity(chunks.iter().map(|c| c.out.len()).sum());
-    for c in &chunks {
-        out.extend_from_slice(&c.out);
+    let mut out = Vec::with_capacity(chunks.iter().flat_map(|c| &c.out).map(Vec::len).sum());
+    for piece in chunks.iter().flat_map(|c| &c.out) {
+        out.extend_from_slice(piece);
     }
     let mut ledger = Ledger::new();
     let mut read = Traffic::default();
@@ -206,7 +302,7 @@ pub fn scan_partition(
     ScanResult { out, count, ledger }
 }
 
-/// Rows per chunk: [`CHUNK_ROWS`] rounded up to a multiple of 64 (one mask word) and of
+/// Rows per chunk: between [`MIN_CHUNK_ROWS`] and [`CHUNK_ROWS`], rounded up to a multiple of 64 (one mask word) and of
 /// the rows that fill whole memory words of every image streamed, so every chunk starts on
 /// a word boundary and per-chunk word counts add up to the partition's.
 fn chunk_rows(table: &Table, cols: &[usize], io: &EngineIo) -> usize {
@@ -220,7 +316,10 @@ fn chunk_rows(table: &Table, cols: &[usize], io: &EngineIo) -> usize {
     } as usize;
     // lcm(64, g): 64 is a power of two, so the gcd is the common power of two.
     let unit = g * 64 / (1usize << g.trailing_zeros().min(6));
-    CHUNK_ROWS.div_ceil(unit) * unit
+    // Eight chunks per thread balance the load; the result does not depend on the size.
+    let target =
+        (table.rows() / (8 * rayon::current_num_threads())).clamp(MIN_CHUNK_ROWS, CHUNK_ROWS);
+    target.div_ceil(unit) * unit
 }
 
 /// The columns an engine streams: those the predicate reads and those it projects
@@ -233,54 +332,6 @@ pub fn touched_columns(params: &ScanParams) -> Vec<usize> {
     cols.sort_unstable();
     cols.dedup();
     cols
-}
-
-/// The output bytes of one chunk (rows `r`, `count` of them matching): its slice of the
-/// bitmap (chunks start on multiples of 64 rows, so slices concatenate), its row ids, or
-/// its projected records.
-fn chunk_records(
-    table: &Table,
-    params: &ScanParams,
-    masks: &[u64],
-    r: std::ops::Range<usize>,
-    id_base: u64,
-    count: u64,
-) -> Vec<u8> {
-    match &params.output {
-        ScanOutput::Bitmap => {
-            let mut out: Vec<u8> = masks.iter().flat_map(|m| m.to_le_bytes()).collect();
-            out.truncate(r.len().div_ceil(8));
-            out
-        }
-        ScanOutput::RowIds => {
-            let base = id_base + r.start as u64;
-            let width = if params.wide_ids { 8 } else { 4 };
-            let mut out = Vec::with_capacity(count as usize * width);
-            if params.wide_ids {
-                for_each_match(masks, |i| out.extend_from_slice(&(base + i).to_le_bytes()));
-            } else {
-                // The job chooses u32 ids only when every row id fits.
-                for_each_match(masks, |i| {
-                    out.extend_from_slice(&((base + i) as u32).to_le_bytes())
-                });
-            }
-            out
-        }
-        ScanOutput::Project(cols) => {
-            let rec: usize = cols
-                .iter()
-                .map(|&c| table.columns[c].ty.bits() as usize / 8)
-                .sum();
-            let mut out = Vec::with_capacity(count as usize * rec);
-            for_each_match(masks, |i| {
-                let row = r.start + i as usize;
-                for &c in cols {
-                    column_bytes(&table.columns[c], row..row + 1, &mut out);
-                }
-            });
-            out
-        }
-    }
 }
 
 /// Rewrites a conjunction of range terms on integer columns as one `between` test per
