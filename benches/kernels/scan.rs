@@ -9,15 +9,7 @@ use weir::kernels::scan::{scan_partition, EngineIo, Isa, ScanOutput};
 const ROWS: u64 = 1 << 26;
 
 fn io() -> EngineIo {
-    EngineIo {
-        engine: 0,
-        channel: 0,
-        word_bytes: 64,
-        column_bases: vec![0],
-        row_base: None,
-        out_base: 0,
-        count_base: 0,
-    }
+    EngineIo::host(1)
 }
 
 pub fn bench(c: &mut Criterion) {

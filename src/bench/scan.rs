@@ -104,15 +104,7 @@ pub fn bench_scan(
         let table = bench_table(p.rows, s);
         table_for(s, &table);
         let params = bench_params(&table);
-        let io = EngineIo {
-            engine: 0,
-            channel: 0,
-            word_bytes: 64,
-            column_bases: vec![0],
-            row_base: None,
-            out_base: 0,
-            count_base: 0,
-        };
+        let io = EngineIo::host(1);
         for &t in &p.threads {
             let pool = rayon::ThreadPoolBuilder::new()
                 .num_threads(t)

@@ -438,6 +438,15 @@ fn column_gen(c: &mut ColumnSpec, pred_range: Option<(i128, i128)>) -> Result<Co
         let (a, b) = c.ty.int_range();
         (a as f64, b as f64)
     };
+    // Integer select columns default to the type's limits; float ones must say.
+    let limit = |v: Option<f64>, type_limit: f64, key: &str| {
+        v.or((!c.ty.is_float()).then_some(type_limit))
+            .ok_or_else(|| {
+                Error::input(format!(
+                    "input.columns `{n}`: `{key}` is required for a float select column"
+                ))
+            })
+    };
     let dist = match c.dist.as_deref() {
         Some("uniform") => Dist::Uniform {
             min: need(c.min, "min")?,
@@ -474,22 +483,8 @@ fn column_gen(c: &mut ColumnSpec, pred_range: Option<(i128, i128)>) -> Result<Co
                 selectivity: need(c.selectivity, "selectivity")?,
                 lo: need(c.lo, "lo")?,
                 hi: need(c.hi, "hi")?,
-                min: c
-                    .min
-                    .or((!c.ty.is_float()).then_some(tmin))
-                    .ok_or_else(|| {
-                        Error::input(format!(
-                            "input.columns `{n}`: `min` is required for a float select column"
-                        ))
-                    })?,
-                max: c
-                    .max
-                    .or((!c.ty.is_float()).then_some(tmax))
-                    .ok_or_else(|| {
-                        Error::input(format!(
-                            "input.columns `{n}`: `max` is required for a float select column"
-                        ))
-                    })?,
+                min: limit(c.min, tmin, "min")?,
+                max: limit(c.max, tmax, "max")?,
                 skew,
             }
         }

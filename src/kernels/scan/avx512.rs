@@ -54,6 +54,29 @@ pub trait Avx512Lane: Lane {
     ) -> usize;
 }
 
+/// The `visit_cmp` method for the given compare predicates of `= < <= != >= >`: each
+/// predicate is an immediate of the compare instruction, so dispatch happens once per call.
+macro_rules! visit_cmp {
+    ($eq:ident, $lt:ident, $le:ident, $ne:ident, $ge:ident, $gt:ident) => {
+        #[inline(always)]
+        unsafe fn visit_cmp<S: FnMut(usize, usize, u64)>(
+            xs: &[Self],
+            op: CmpOp,
+            c: Self,
+            sink: &mut S,
+        ) -> usize {
+            match op {
+                CmpOp::Eq => visit(xs, |p| Self::cmp_mask::<$eq>(p, c), sink),
+                CmpOp::Lt => visit(xs, |p| Self::cmp_mask::<$lt>(p, c), sink),
+                CmpOp::Le => visit(xs, |p| Self::cmp_mask::<$le>(p, c), sink),
+                CmpOp::Ne => visit(xs, |p| Self::cmp_mask::<$ne>(p, c), sink),
+                CmpOp::Ge => visit(xs, |p| Self::cmp_mask::<$ge>(p, c), sink),
+                CmpOp::Gt => visit(xs, |p| Self::cmp_mask::<$gt>(p, c), sink),
+            }
+        }
+    };
+}
+
 macro_rules! int_lane {
     ($t:ty, $lanes:expr, $set1:ident, $as:ty, $cmp:ident, $cmpu:ident, $sub:ident) => {
         impl Avx512Lane for $t {
@@ -70,23 +93,7 @@ macro_rules! int_lane {
                 let span = $set1(hi.wrapping_sub(lo) as $as);
                 u64::from($cmpu::<LE>(d, span)) * u64::from(lo <= hi)
             }
-            #[inline(always)]
-            unsafe fn visit_cmp<S: FnMut(usize, usize, u64)>(
-                xs: &[Self],
-                op: CmpOp,
-                c: Self,
-                sink: &mut S,
-            ) -> usize {
-                // The predicate is an immediate of the instruction: dispatch once per call.
-                match op {
-                    CmpOp::Eq => visit(xs, |p| Self::cmp_mask::<EQ>(p, c), sink),
-                    CmpOp::Lt => visit(xs, |p| Self::cmp_mask::<LT>(p, c), sink),
-                    CmpOp::Le => visit(xs, |p| Self::cmp_mask::<LE>(p, c), sink),
-                    CmpOp::Ne => visit(xs, |p| Self::cmp_mask::<NE>(p, c), sink),
-                    CmpOp::Ge => visit(xs, |p| Self::cmp_mask::<GE>(p, c), sink),
-                    CmpOp::Gt => visit(xs, |p| Self::cmp_mask::<GT>(p, c), sink),
-                }
-            }
+            visit_cmp!(EQ, LT, LE, NE, GE, GT);
         }
     };
 }
@@ -177,22 +184,7 @@ macro_rules! float_lane {
                 let v = $load(p);
                 u64::from($cmp::<F_GE>(v, $set1(lo)) & $cmp::<F_LE>(v, $set1(hi)))
             }
-            #[inline(always)]
-            unsafe fn visit_cmp<S: FnMut(usize, usize, u64)>(
-                xs: &[Self],
-                op: CmpOp,
-                c: Self,
-                sink: &mut S,
-            ) -> usize {
-                match op {
-                    CmpOp::Eq => visit(xs, |p| Self::cmp_mask::<F_EQ>(p, c), sink),
-                    CmpOp::Lt => visit(xs, |p| Self::cmp_mask::<F_LT>(p, c), sink),
-                    CmpOp::Le => visit(xs, |p| Self::cmp_mask::<F_LE>(p, c), sink),
-                    CmpOp::Ne => visit(xs, |p| Self::cmp_mask::<F_NE>(p, c), sink),
-                    CmpOp::Ge => visit(xs, |p| Self::cmp_mask::<F_GE>(p, c), sink),
-                    CmpOp::Gt => visit(xs, |p| Self::cmp_mask::<F_GT>(p, c), sink),
-                }
-            }
+            visit_cmp!(F_EQ, F_LT, F_LE, F_NE, F_GE, F_GT);
         }
     };
 }

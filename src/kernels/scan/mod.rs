@@ -109,6 +109,22 @@ pub struct EngineIo {
     pub count_base: u64,
 }
 
+impl EngineIo {
+    /// An engine whose regions all start at address 0 of channel 0, for host benchmarks
+    /// where no device layout exists (word counts then assume 512-bit words).
+    pub fn host(columns: usize) -> EngineIo {
+        EngineIo {
+            engine: 0,
+            channel: 0,
+            word_bytes: 64,
+            column_bases: vec![0; columns],
+            row_base: None,
+            out_base: 0,
+            count_base: 0,
+        }
+    }
+}
+
 /// Bytes of the count word's payload (a little-endian `u64`).
 pub const COUNT_BYTES: u64 = 8;
 
@@ -137,6 +153,36 @@ struct Worker {
     masks: Vec<u64>,
     scratch: mask::Scratch,
     buckets: [Vec<u8>; mask::BUCKETS],
+}
+
+/// Visits the mask words of rows `r` and calls `put(bucket output, row in chunk)` for every
+/// matching row; returns the match count.
+#[allow(clippy::too_many_arguments)]
+#[inline(always)]
+fn visit_matches(
+    isa: Isa,
+    table: &Table,
+    params: &ScanParams,
+    r: std::ops::Range<usize>,
+    masks: &mut Vec<u64>,
+    scratch: &mut mask::Scratch,
+    buckets: &mut [Vec<u8>; mask::BUCKETS],
+    mut put: impl FnMut(&mut Vec<u8>, usize),
+) -> u64 {
+    let mut count = 0u64;
+    mask::visit(
+        isa,
+        &params.predicate,
+        table,
+        r,
+        masks,
+        scratch,
+        &mut |k, i, m| {
+            count += u64::from(m.count_ones());
+            for_each_match(&[m], |j| put(&mut buckets[k], 64 * i + j as usize));
+        },
+    );
+    count
 }
 
 /// Scans rows `r` of a partition: returns the chunk's output pieces in row order and its
@@ -178,57 +224,26 @@ fn scan_chunk(
             return (vec![out], count);
         }
         ScanOutput::RowIds if params.wide_ids => {
-            mask::visit(
-                isa,
-                &params.predicate,
-                table,
-                r.clone(),
-                masks,
-                scratch,
-                &mut |k, i, m| {
-                    count += u64::from(m.count_ones());
-                    for_each_match(&[m], |j| {
-                        buckets[k].extend_from_slice(&(base + 64 * i as u64 + j).to_le_bytes())
-                    });
-                },
-            );
+            let put = |out: &mut Vec<u8>, row: usize| {
+                out.extend_from_slice(&(base + row as u64).to_le_bytes())
+            };
+            count = visit_matches(isa, table, params, r, masks, scratch, buckets, put);
         }
         ScanOutput::RowIds => {
             // The job chooses u32 ids only when every row id fits.
-            mask::visit(
-                isa,
-                &params.predicate,
-                table,
-                r.clone(),
-                masks,
-                scratch,
-                &mut |k, i, m| {
-                    count += u64::from(m.count_ones());
-                    for_each_match(&[m], |j| {
-                        buckets[k]
-                            .extend_from_slice(&((base + 64 * i as u64 + j) as u32).to_le_bytes())
-                    });
-                },
-            );
+            let put = |out: &mut Vec<u8>, row: usize| {
+                out.extend_from_slice(&((base + row as u64) as u32).to_le_bytes())
+            };
+            count = visit_matches(isa, table, params, r, masks, scratch, buckets, put);
         }
         ScanOutput::Project(cols) => {
-            mask::visit(
-                isa,
-                &params.predicate,
-                table,
-                r.clone(),
-                masks,
-                scratch,
-                &mut |k, i, m| {
-                    count += u64::from(m.count_ones());
-                    for_each_match(&[m], |j| {
-                        let row = r.start + 64 * i + j as usize;
-                        for &c in cols {
-                            column_bytes(&table.columns[c], row..row + 1, &mut buckets[k]);
-                        }
-                    });
-                },
-            );
+            let start = r.start;
+            let put = |out: &mut Vec<u8>, row: usize| {
+                for &c in cols {
+                    column_bytes(&table.columns[c], start + row..start + row + 1, out);
+                }
+            };
+            count = visit_matches(isa, table, params, r, masks, scratch, buckets, put);
         }
     }
     let pieces = buckets
