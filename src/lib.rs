@@ -16,6 +16,7 @@ pub mod ledger;
 pub mod manifest;
 pub mod memmap;
 pub mod npy;
+pub mod plot;
 pub mod report;
 pub mod table;
 

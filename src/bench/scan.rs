@@ -8,6 +8,7 @@ use super::stats::{summarize, time_runs, Summary};
 use crate::gen::{ColumnGen, Dist, Shape, Skew, TableGen};
 use crate::kernels::predicate;
 use crate::kernels::scan::{fuse_ranges, scan_partition, EngineIo, Isa, ScanOutput, ScanParams};
+use crate::plot::{Chart, Reference, Series};
 use crate::table::{ElemType, Table};
 
 /// Start of the match range the bench's column is generated for.
@@ -136,6 +137,59 @@ pub fn bench_scan(
         }
     }
     points
+}
+
+/// GB/s against selectivity, one line per thread count, with the calibrated read
+/// bandwidth of each thread count as a dashed reference.
+pub fn chart(points: &[ScanPoint], rows: u64) -> Chart {
+    let mut sels: Vec<f64> = Vec::new();
+    let mut threads: Vec<usize> = Vec::new();
+    for p in points {
+        if !sels.contains(&p.selectivity) {
+            sels.push(p.selectivity);
+        }
+        if !threads.contains(&p.threads) {
+            threads.push(p.threads);
+        }
+    }
+    let name = |t: usize| {
+        if t == 1 {
+            "1 thread".to_string()
+        } else {
+            format!("{t} threads")
+        }
+    };
+    let series = threads
+        .iter()
+        .map(|&t| Series {
+            name: name(t),
+            values: sels
+                .iter()
+                .map(|&s| {
+                    points
+                        .iter()
+                        .find(|p| p.threads == t && p.selectivity == s)
+                        .map(|p| p.gbps)
+                })
+                .collect(),
+        })
+        .collect();
+    let references = threads
+        .iter()
+        .filter_map(|&t| points.iter().find(|p| p.threads == t))
+        .map(|p| Reference {
+            name: format!("read, {}", name(p.threads)),
+            value: p.read_gbps,
+        })
+        .collect();
+    Chart {
+        title: format!("scan of {} MiB of u32, row-id output", (rows * 4) >> 20),
+        x_label: "selectivity".into(),
+        y_label: "GB/s of input (median)".into(),
+        x: sels.iter().map(|s| s.to_string()).collect(),
+        series,
+        references,
+    }
 }
 
 /// The points as CSV.

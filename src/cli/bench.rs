@@ -114,7 +114,7 @@ fn bench_scan(a: BenchScanArgs) -> Result<Outcome> {
     let outputs: Vec<std::path::PathBuf> = a
         .out
         .iter()
-        .flat_map(|p| [p.with_extension("csv"), p.with_extension("json")])
+        .flat_map(|p| ["csv", "json", "svg"].map(|e| p.with_extension(e)))
         .collect();
     if let Some(p) = outputs.iter().find(|p| p.exists() && !a.force) {
         return Err(Error::exists(format!(
@@ -221,10 +221,13 @@ fn bench_scan(a: BenchScanArgs) -> Result<Outcome> {
         let json = serde_json::json!({ "bench": "scan", "rows": a.rows, "calibration": cal, "points": points });
         let text = serde_json::to_string_pretty(&json).expect("json") + "\n";
         write_file_atomic(&prefix.with_extension("json"), text.as_bytes(), a.force)?;
+        let svg = scan_bench::chart(&points, a.rows).to_svg();
+        write_file_atomic(&prefix.with_extension("svg"), svg.as_bytes(), a.force)?;
         println!(
-            "saved {} and {}",
+            "saved {}, {} and {}",
             prefix.with_extension("csv").display(),
-            prefix.with_extension("json").display()
+            prefix.with_extension("json").display(),
+            prefix.with_extension("svg").display()
         );
     }
     Ok(Outcome::Ok)
