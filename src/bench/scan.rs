@@ -7,7 +7,9 @@ use serde::Serialize;
 use super::stats::{summarize, time_runs, Summary};
 use crate::gen::{ColumnGen, Dist, Shape, Skew, TableGen};
 use crate::kernels::predicate;
-use crate::kernels::scan::{fuse_ranges, scan_partition, EngineIo, Isa, ScanOutput, ScanParams};
+use crate::kernels::scan::{
+    fuse_ranges, scan_partition_into, EngineIo, Isa, ScanBuffers, ScanOutput, ScanParams,
+};
 use crate::plot::{Chart, Reference, Series};
 use crate::table::{ElemType, Table};
 
@@ -112,10 +114,13 @@ pub fn bench_scan(
                 .build()
                 .expect("thread pool");
             let mut matches = 0;
+            // The output buffer is reused across runs, as a caller scanning repeatedly
+            // would; the warm-up run sizes it.
+            let mut bufs = ScanBuffers::default();
             let times = pool.install(|| {
                 time_runs(1, p.runs, || {
-                    let r = scan_partition(isa, &table, 0, &params, &io);
-                    matches = std::hint::black_box(r.count);
+                    let (count, _) = scan_partition_into(isa, &table, 0, &params, &io, &mut bufs);
+                    matches = std::hint::black_box(count);
                 })
             });
             let time = summarize(&times);

@@ -139,20 +139,41 @@ pub struct ScanResult {
     pub ledger: Ledger,
 }
 
-struct ChunkOut {
-    /// Output pieces in row order (one per bucket), joined once at the end.
-    out: Vec<Vec<u8>>,
-    count: u64,
-    read: Traffic,
+/// Reusable buffers of a scan. A caller that scans repeatedly (a benchmark, a service)
+/// keeps one, so the outputs' memory is not fresh (and page-faulted) on every scan.
+#[derive(Debug, Default)]
+pub struct ScanBuffers {
+    /// One output per (chunk, bucket of the mask visit), in row order.
+    pieces: Vec<[Vec<u8>; mask::BUCKETS]>,
+    /// The last scan's output region bytes.
+    pub out: Vec<u8>,
 }
 
-/// A worker's reusable buffers: mask words, the predicate's temporaries and one output
-/// per bucket of a mask visit.
-#[derive(Default)]
-struct Worker {
-    masks: Vec<u64>,
-    scratch: mask::Scratch,
-    buckets: [Vec<u8>; mask::BUCKETS],
+/// Sets `v` to `len` bytes, keeping (not clearing) what is there: the caller overwrites
+/// every byte, so only growth needs filling.
+fn set_len(v: &mut Vec<u8>, len: usize) {
+    if v.len() < len {
+        v.resize(len, 0);
+    } else {
+        v.truncate(len);
+    }
+}
+
+/// Scans one partition (`table` holds just its rows; `row_start` is its first global row).
+pub fn scan_partition(
+    isa: Isa,
+    table: &Table,
+    row_start: u64,
+    params: &ScanParams,
+    io: &EngineIo,
+) -> ScanResult {
+    let mut bufs = ScanBuffers::default();
+    let (count, ledger) = scan_partition_into(isa, table, row_start, params, io, &mut bufs);
+    ScanResult {
+        out: bufs.out,
+        count,
+        ledger,
+    }
 }
 
 /// Visits the mask words of rows `r` and calls `put(bucket output, row in chunk)` for every
@@ -185,28 +206,23 @@ fn visit_matches(
     count
 }
 
-/// Scans rows `r` of a partition: returns the chunk's output pieces in row order and its
-/// match count. Matches are written as the mask words arrive, into one output per bucket
-/// of the visit (buckets cover the rows in order).
+/// Scans rows `r` (one chunk) into its bucket outputs; returns the match count. Matches
+/// are written as the mask words arrive, while the next data is in flight.
 fn scan_chunk(
     isa: Isa,
     table: &Table,
     params: &ScanParams,
     r: std::ops::Range<usize>,
     id_base: u64,
-    w: &mut Worker,
-) -> (Vec<Vec<u8>>, u64) {
-    let mut count = 0u64;
-    let base = id_base + r.start as u64;
-    let Worker {
-        masks,
-        scratch,
-        buckets,
-    } = w;
+    (masks, scratch): &mut (Vec<u64>, mask::Scratch),
+    buckets: &mut [Vec<u8>; mask::BUCKETS],
+) -> u64 {
     buckets.iter_mut().for_each(Vec::clear);
+    let base = id_base + r.start as u64;
     match &params.output {
         ScanOutput::Bitmap => {
             let mut words = vec![0u64; r.len().div_ceil(64)];
+            let mut count = 0u64;
             mask::visit(
                 isa,
                 &params.predicate,
@@ -219,22 +235,22 @@ fn scan_chunk(
                     words[i] = m;
                 },
             );
-            let mut out: Vec<u8> = words.iter().flat_map(|m| m.to_le_bytes()).collect();
-            out.truncate(r.len().div_ceil(8));
-            return (vec![out], count);
+            buckets[0].extend(words.iter().flat_map(|m| m.to_le_bytes()));
+            buckets[0].truncate(r.len().div_ceil(8));
+            count
         }
         ScanOutput::RowIds if params.wide_ids => {
             let put = |out: &mut Vec<u8>, row: usize| {
                 out.extend_from_slice(&(base + row as u64).to_le_bytes())
             };
-            count = visit_matches(isa, table, params, r, masks, scratch, buckets, put);
+            visit_matches(isa, table, params, r, masks, scratch, buckets, put)
         }
         ScanOutput::RowIds => {
             // The job chooses u32 ids only when every row id fits.
             let put = |out: &mut Vec<u8>, row: usize| {
                 out.extend_from_slice(&((base + row as u64) as u32).to_le_bytes())
             };
-            count = visit_matches(isa, table, params, r, masks, scratch, buckets, put);
+            visit_matches(isa, table, params, r, masks, scratch, buckets, put)
         }
         ScanOutput::Project(cols) => {
             let start = r.start;
@@ -243,78 +259,96 @@ fn scan_chunk(
                     column_bytes(&table.columns[c], start + row..start + row + 1, out);
                 }
             };
-            count = visit_matches(isa, table, params, r, masks, scratch, buckets, put);
+            visit_matches(isa, table, params, r, masks, scratch, buckets, put)
         }
     }
-    let pieces = buckets
-        .iter_mut()
-        .filter(|b| !b.is_empty())
-        .map(std::mem::take)
-        .collect();
-    (pieces, count)
 }
 
-/// Scans one partition (`table` holds just its rows; `row_start` is its first global row).
-pub fn scan_partition(
+/// Scans one partition into `bufs.out`; returns the match count and the ledger.
+///
+/// Chunks of rows are scanned in parallel, each into its own outputs (kept in `bufs`
+/// between scans); then the outputs are copied, in parallel, into their places in
+/// `bufs.out`, known from their lengths. Both steps keep chunk order.
+pub fn scan_partition_into(
     isa: Isa,
     table: &Table,
     row_start: u64,
     params: &ScanParams,
     io: &EngineIo,
-) -> ScanResult {
+    bufs: &mut ScanBuffers,
+) -> (u64, Ledger) {
     let rows = table.rows();
     let cols = touched_columns(params);
     let id_base = if params.global_ids { row_start } else { 0 };
     let chunk = chunk_rows(table, &cols, io);
-    let chunks: Vec<ChunkOut> = (0..rows.div_ceil(chunk))
-        .into_par_iter()
-        .map_init(Worker::default, |w, c| {
+    let n = rows.div_ceil(chunk);
+    if bufs.pieces.len() < n {
+        bufs.pieces.resize_with(n, Default::default);
+    }
+    let passes: Vec<(u64, Traffic)> = bufs.pieces[..n]
+        .par_iter_mut()
+        .enumerate()
+        .map_init(Default::default, |worker, (c, buckets)| {
             let r = c * chunk..((c + 1) * chunk).min(rows);
-            let (out, count) = scan_chunk(isa, table, params, r.clone(), id_base, w);
-            let mut read = Traffic::default();
-            let (start, len) = (r.start as u64, r.len() as u64);
-            if let Some(base) = io.row_base {
-                let rec: u64 = table
-                    .columns
-                    .iter()
-                    .map(|c| u64::from(c.ty.bits() / 8))
-                    .sum();
-                let mut cur = Cursor::new(base + start * rec, io.word_bytes);
-                cur.touch(len * rec, len);
-                read += cur.traffic;
-            } else {
-                // Rows are logical: counted once per row, on the first column streamed.
-                for (k, &ci) in cols.iter().enumerate() {
-                    let ty = table.columns[ci].ty;
-                    let mut cur =
-                        Cursor::new(io.column_bases[ci] + byte_len(ty, start), io.word_bytes);
-                    cur.touch(byte_len(ty, len), if k == 0 { len } else { 0 });
-                    read += cur.traffic;
-                }
-            }
-            ChunkOut { out, count, read }
+            let count = scan_chunk(isa, table, params, r.clone(), id_base, worker, buckets);
+            (count, chunk_reads(table, &cols, io, r))
         })
         .collect();
-    let count = chunks.iter().map(|c| c.count).sum();
-    let mut out = Vec::with_capacity(chunks.iter().flat_map(|c| &c.out).map(Vec::len).sum());
-    for piece in chunks.iter().flat_map(|c| &c.out) {
-        out.extend_from_slice(piece);
+    let count: u64 = passes.iter().map(|p| p.0).sum();
+    let pieces: Vec<&Vec<u8>> = bufs.pieces[..n].iter().flatten().collect();
+    set_len(&mut bufs.out, pieces.iter().map(|p| p.len()).sum());
+    let mut slices = Vec::with_capacity(pieces.len());
+    let mut rest: &mut [u8] = &mut bufs.out;
+    for p in &pieces {
+        let (head, tail) = std::mem::take(&mut rest).split_at_mut(p.len());
+        slices.push((head, *p));
+        rest = tail;
     }
+    slices
+        .into_par_iter()
+        .for_each(|(dst, src)| dst.copy_from_slice(src));
     let mut ledger = Ledger::new();
     let mut read = Traffic::default();
-    for c in &chunks {
-        read += c.read;
+    for (_, t) in &passes {
+        read += *t;
     }
-    let read_key = Key::device(io.engine, PHASE, io.channel, Direction::Read);
-    ledger.add(read_key, read);
+    ledger.add(
+        Key::device(io.engine, PHASE, io.channel, Direction::Read),
+        read,
+    );
     let mut w = Cursor::new(io.out_base, io.word_bytes);
-    w.touch(out.len() as u64, count);
+    w.touch(bufs.out.len() as u64, count);
     let mut cw = Cursor::new(io.count_base, io.word_bytes);
     cw.touch(COUNT_BYTES, 0);
     let write_key = Key::device(io.engine, PHASE, io.channel, Direction::Write);
     ledger.add(write_key, w.traffic);
     ledger.add(write_key, cw.traffic);
-    ScanResult { out, count, ledger }
+    (count, ledger)
+}
+
+/// The device reads of rows `r`: every streamed column (or the whole records of a
+/// row-major image), counted from their bases; rows are logical, counted once.
+fn chunk_reads(table: &Table, cols: &[usize], io: &EngineIo, r: std::ops::Range<usize>) -> Traffic {
+    let mut read = Traffic::default();
+    let (start, len) = (r.start as u64, r.len() as u64);
+    if let Some(base) = io.row_base {
+        let rec: u64 = table
+            .columns
+            .iter()
+            .map(|c| u64::from(c.ty.bits() / 8))
+            .sum();
+        let mut cur = Cursor::new(base + start * rec, io.word_bytes);
+        cur.touch(len * rec, len);
+        read += cur.traffic;
+    } else {
+        for (k, &ci) in cols.iter().enumerate() {
+            let ty = table.columns[ci].ty;
+            let mut cur = Cursor::new(io.column_bases[ci] + byte_len(ty, start), io.word_bytes);
+            cur.touch(byte_len(ty, len), if k == 0 { len } else { 0 });
+            read += cur.traffic;
+        }
+    }
+    read
 }
 
 /// Rows per chunk: between [`MIN_CHUNK_ROWS`] and [`CHUNK_ROWS`], rounded up to a multiple of 64 (one mask word) and of
@@ -390,4 +424,49 @@ pub fn naive_scan(table: &Table, pred: &Bound) -> Vec<u64> {
         .filter(|&r| pred.eval(&|c| crate::kernels::value_at(&table.columns[c], r)))
         .map(|r| r as u64)
         .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::kernels::predicate::compile;
+    use crate::table::{Column, ColumnData};
+
+    fn table(rows: u32, mul: u32) -> Table {
+        let v = (0..rows).map(|i| i.wrapping_mul(mul) % 1000).collect();
+        Table::new(
+            "t",
+            vec![Column::new("v", ElemType::U32, ColumnData::U32(v)).unwrap()],
+        )
+        .unwrap()
+    }
+
+    #[test]
+    fn reused_buffers_give_the_same_bytes_as_fresh_ones() {
+        let big = table(300_000, 7919);
+        let small = table(1_000, 104_729);
+        let mut bufs = ScanBuffers::default();
+        for output in [
+            ScanOutput::RowIds,
+            ScanOutput::Bitmap,
+            ScanOutput::Project(vec![0]),
+        ] {
+            let params = ScanParams {
+                predicate: compile("v < 100 or v = 999", &big.schema()).unwrap(),
+                output,
+                global_ids: true,
+                wide_ids: false,
+            };
+            let io = EngineIo::host(1);
+            for t in [&big, &small, &big] {
+                let (count, ledger) =
+                    scan_partition_into(Isa::detect(), t, 5, &params, &io, &mut bufs);
+                let fresh = scan_partition(Isa::Portable, t, 5, &params, &io);
+                assert_eq!(
+                    (count, &ledger, &bufs.out),
+                    (fresh.count, &fresh.ledger, &fresh.out)
+                );
+            }
+        }
+    }
 }
