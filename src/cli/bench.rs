@@ -69,18 +69,18 @@ pub fn calibrate(a: CalibrateArgs) -> Result<Outcome> {
         runs: a.runs,
     };
     let cal = run_calibration(&params)?;
-    println!(
+    say!(
         "streaming bandwidth over {} MiB buffers, best of {} runs ({}; {})",
         cal.bytes >> 20,
         cal.runs,
         cal.isa,
         cal.cpu
     );
-    print!("{}", calibration_table(&cal));
+    say!("{}", calibration_table(&cal).trim_end());
     if let Some(out) = &a.out {
         let text = cal.to_json().map_err(|e| Error::input(e.to_string()))?;
         write_file_atomic(out, text.as_bytes(), a.force)?;
-        println!("saved to {}", out.display());
+        say!("saved to {}", out.display());
     }
     Ok(Outcome::Ok)
 }
@@ -177,7 +177,7 @@ fn bench_scan(a: BenchScanArgs) -> Result<Outcome> {
     if let Some(e) = save_err {
         return Err(e);
     }
-    println!(
+    say!(
         "scan of {} u32 rows ({} MiB), predicate v >= {} and v < {}, row-id output, {} runs after a warm-up",
         a.rows,
         (a.rows * 4) >> 20,
@@ -211,7 +211,7 @@ fn bench_scan(a: BenchScanArgs) -> Result<Outcome> {
             p.isa.to_string(),
         ]);
     }
-    print!("{}", t.render());
+    say!("{}", t.render().trim_end());
     if let Some(prefix) = &a.out {
         write_file_atomic(
             &prefix.with_extension("csv"),
@@ -223,7 +223,7 @@ fn bench_scan(a: BenchScanArgs) -> Result<Outcome> {
         write_file_atomic(&prefix.with_extension("json"), text.as_bytes(), a.force)?;
         let svg = scan_bench::chart(&points, a.rows).to_svg();
         write_file_atomic(&prefix.with_extension("svg"), svg.as_bytes(), a.force)?;
-        println!(
+        say!(
             "saved {}, {} and {}",
             prefix.with_extension("csv").display(),
             prefix.with_extension("json").display(),

@@ -11,7 +11,7 @@ use super::Outcome;
 /// `weir inspect`: the manifest as a table, then every checksum verified.
 pub fn inspect(a: InspectArgs) -> Result<Outcome> {
     let m = Manifest::load(&a.dir)?;
-    println!(
+    say!(
         "{}: manifest format {}, written by weir {}, {}-bit words",
         a.dir.display(),
         m.format_version,
@@ -38,16 +38,16 @@ pub fn inspect(a: InspectArgs) -> Result<Outcome> {
             f.sha256[..12.min(f.sha256.len())].to_string(),
         ]);
     }
-    print!("{}", t.render());
+    say!("{}", t.render().trim_end());
     let bad = m.verify(&a.dir);
     if bad.is_empty() {
-        println!("all {} checksums match", m.files.len());
+        say!("all {} checksums match", m.files.len());
         Ok(Outcome::Ok)
     } else {
         for (p, why) in &bad {
-            println!("CHANGED {p}: {why}");
+            say!("CHANGED {p}: {why}");
         }
-        println!(
+        say!(
             "{} of {} files differ from the manifest",
             bad.len(),
             m.files.len()
@@ -66,12 +66,12 @@ pub fn check(a: CheckArgs) -> Result<Outcome> {
         },
     )?;
     if a.json {
-        println!(
+        say!(
             "{}",
             serde_json::to_string_pretty(&report).expect("report serializes")
         );
     } else {
-        print!("{}", report.to_text());
+        say!("{}", report.to_text().trim_end());
     }
     Ok(if report.matched {
         Outcome::Ok

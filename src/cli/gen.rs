@@ -89,7 +89,7 @@ fn gen_scan(a: GenScanArgs) -> Result<Outcome> {
         }
     };
     write_file_atomic(&a.out, &bytes, a.force)?;
-    println!(
+    say!(
         "wrote {} rows of {ty} to {}: selectivity of {} <= v < {}: requested {:.4}%, achieved {:.4}%",
         a.rows,
         a.out.display(),

@@ -1,6 +1,14 @@
 //! The command line: parses flags, calls the library, prints tables and sets the exit code
 //! (0 ok, 1 mismatch, 2 bad input or usage). Nothing below this module prints or exits.
 
+/// Prints to standard output like `println!`, but a closed pipe (`weir inspect | head`)
+/// ends the program quietly instead of panicking.
+macro_rules! say {
+    ($($t:tt)*) => {
+        $crate::cli::emit(&format!($($t)*))
+    };
+}
+
 pub mod args;
 mod bench;
 mod check;
@@ -51,6 +59,20 @@ fn dispatch(cmd: Command) -> weir::Result<Outcome> {
         Command::Gen(a) => gen::gen(a),
         Command::Calibrate(a) => bench::calibrate(a),
         Command::Bench(a) => bench::bench(a),
+    }
+}
+
+/// Writes `text` and a newline to standard output; exits with success when the reader
+/// has gone away (a broken pipe is not an error of ours).
+pub fn emit(text: &str) {
+    use std::io::Write;
+    let mut out = std::io::stdout().lock();
+    if let Err(e) = writeln!(out, "{text}").and_then(|()| out.flush()) {
+        if e.kind() == std::io::ErrorKind::BrokenPipe {
+            std::process::exit(0);
+        }
+        eprintln!("weir: error: writing to standard output: {e}");
+        std::process::exit(2);
     }
 }
 

@@ -43,21 +43,21 @@ fn execute(
 
 /// Prints the short summary of one run.
 fn print_summary(dir: &Path, s: &RunSummary) {
-    println!("wrote {} files to {}", s.files, dir.display());
+    say!("wrote {} files to {}", s.files, dir.display());
     let achieved = if s.rows > 0 {
         s.matches as f64 / s.rows as f64
     } else {
         0.0
     };
     match s.requested_selectivity {
-        Some(r) => println!(
+        Some(r) => say!(
             "selectivity: requested {:.4}%, achieved {:.4}% ({} of {} rows)",
             r * 100.0,
             achieved * 100.0,
             s.matches,
             s.rows
         ),
-        None => println!(
+        None => say!(
             "selectivity: {:.4}% ({} of {} rows)",
             achieved * 100.0,
             s.matches,
@@ -73,14 +73,14 @@ fn print_summary(dir: &Path, s: &RunSummary) {
             p.matches.to_string(),
         ]);
     }
-    println!("\n{}", t.render());
-    println!("{}", ledger_report(&s.ledger));
+    say!("\n{}", t.render());
+    say!("{}", ledger_report(&s.ledger));
     let gbps = if s.kernel_s > 0.0 {
         s.input_bytes as f64 / s.kernel_s / 1e9
     } else {
         0.0
     };
-    println!(
+    say!(
         "host: kernel {:.3} s over {} ({gbps:.2} GB/s, {}, {} threads); generate {:.3} s; write {:.3} s",
         s.kernel_s,
         human_bytes(s.input_bytes),
@@ -104,7 +104,7 @@ pub fn run(a: RunArgs) -> Result<Outcome> {
 /// `weir demo`.
 pub fn demo(a: DemoArgs) -> Result<Outcome> {
     let spec = JobSpec::from_toml(DEMO_JOB, Path::new("data/jobs/demo.toml"))?;
-    println!(
+    say!(
         "weir demo: wind-farm telemetry, predicate `{}`",
         demo_predicate(&spec)
     );
