@@ -130,12 +130,18 @@ fn bench_scan(a: BenchScanArgs) -> Result<Outcome> {
         }
         None => {
             let max = threads.iter().copied().max().unwrap_or(1);
-            eprintln!("no --calibration given: measuring read bandwidth now (256 MiB, 3 runs)");
-            run_calibration(&CalibrationParams {
+            // The same buffer size as `weir calibrate`: a short buffer or few runs read
+            // low on a host whose bandwidth wanders.
+            let params = CalibrationParams {
                 max_threads: max,
-                bytes: 256 << 20,
-                runs: 3,
-            })?
+                ..CalibrationParams::default()
+            };
+            eprintln!(
+                "no --calibration given: measuring read bandwidth now ({} MiB, best of {} runs)",
+                params.bytes >> 20,
+                params.runs
+            );
+            run_calibration(&params)?
         }
     };
     let params = ScanBenchParams {
