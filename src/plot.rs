@@ -149,17 +149,12 @@ impl Chart {
                 r#"<line x1="{LEFT}" y1="{y:.1}" x2="{:.1}" y2="{y:.1}" stroke="{c}" stroke-dasharray="6 4"/>"#,
                 LEFT + pw
             );
-            let _ = writeln!(
-                s,
-                r#"<line x1="{lx}" y1="{legend_y:.1}" x2="{:.1}" y2="{legend_y:.1}" stroke="{c}" stroke-dasharray="6 4"/>"#,
-                lx + 24.0
-            );
-            let _ = writeln!(
-                s,
-                r#"<text x="{:.1}" y="{:.1}">{}</text>"#,
-                lx + 30.0,
-                legend_y + 4.0,
-                esc(&r.name)
+            legend(
+                &mut s,
+                lx,
+                legend_y,
+                &format!(r#"stroke="{c}" stroke-dasharray="6 4""#),
+                &r.name,
             );
             legend_y += 20.0;
         }
@@ -180,23 +175,34 @@ impl Chart {
                 let (x, y) = p.split_once(',').unwrap_or(("0", "0"));
                 let _ = writeln!(s, r#"<circle cx="{x}" cy="{y}" r="3.5" fill="{c}"/>"#);
             }
-            let _ = writeln!(
-                s,
-                r#"<line x1="{lx}" y1="{legend_y:.1}" x2="{:.1}" y2="{legend_y:.1}" stroke="{c}" stroke-width="2"/>"#,
-                lx + 24.0
-            );
-            let _ = writeln!(
-                s,
-                r#"<text x="{:.1}" y="{:.1}">{}</text>"#,
-                lx + 30.0,
-                legend_y + 4.0,
-                esc(&ser.name)
+            legend(
+                &mut s,
+                lx,
+                legend_y,
+                &format!(r#"stroke="{c}" stroke-width="2""#),
+                &ser.name,
             );
             legend_y += 20.0;
         }
         s.push_str("</svg>\n");
         s
     }
+}
+
+/// One legend entry at (`x`, `y`): a short line drawn with `style`, then `name`.
+fn legend(s: &mut String, x: f64, y: f64, style: &str, name: &str) {
+    let _ = writeln!(
+        s,
+        r#"<line x1="{x}" y1="{y:.1}" x2="{:.1}" y2="{y:.1}" {style}/>"#,
+        x + 24.0
+    );
+    let _ = writeln!(
+        s,
+        r#"<text x="{:.1}" y="{:.1}">{}</text>"#,
+        x + 30.0,
+        y + 4.0,
+        esc(name)
+    );
 }
 
 /// A tick value without trailing zeros.
