@@ -422,3 +422,68 @@ fn gen_scan_reports_requested_and_achieved_selectivity() {
     let o = weir_in(&t.0, &["gen", "scan", "--rows", "10", "--out", "v.npy"]);
     assert_eq!(o.code, 2, "an existing file needs --force");
 }
+
+#[test]
+fn calibrate_and_bench_write_their_results() {
+    let t = TempDir::new("bench");
+    let cal = t.join("cal.json");
+    let o = weir(&[
+        "calibrate",
+        "--bytes",
+        "8M",
+        "--runs",
+        "1",
+        "--threads",
+        "1",
+        "--out",
+        cal.to_str().unwrap(),
+    ]);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(o.stdout.contains("read GB/s"), "{}", o.stdout);
+    let prefix = t.join("scan");
+    let o = weir(&[
+        "bench",
+        "scan",
+        "--rows",
+        "200000",
+        "--runs",
+        "1",
+        "--threads",
+        "1",
+        "--selectivity",
+        "0.01,0.2",
+        "--calibration",
+        cal.to_str().unwrap(),
+        "--out",
+        prefix.to_str().unwrap(),
+    ]);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let csv = std::fs::read_to_string(t.join("scan.csv")).unwrap();
+    assert_eq!(csv.lines().count(), 3, "{csv}");
+    let v: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(t.join("scan.json")).unwrap()).unwrap();
+    let points = v["points"].as_array().unwrap();
+    // The generator aims at the requested selectivity; 200,000 rows keep it within 1 %.
+    for (p, want) in points.iter().zip([0.01, 0.2]) {
+        let got = p["matches"].as_f64().unwrap() / 200_000.0;
+        assert!((got - want).abs() < 0.01, "{got} for {want}");
+    }
+    let svg = std::fs::read_to_string(t.join("scan.svg")).unwrap();
+    assert!(
+        svg.contains("<polyline") && svg.contains("read, 1 thread"),
+        "{svg}"
+    );
+    // Results are never overwritten without --force.
+    let o = weir(&[
+        "calibrate",
+        "--bytes",
+        "8M",
+        "--runs",
+        "1",
+        "--threads",
+        "1",
+        "--out",
+        cal.to_str().unwrap(),
+    ]);
+    assert_eq!(o.code, 2);
+}
