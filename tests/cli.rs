@@ -427,17 +427,20 @@ fn gen_scan_reports_requested_and_achieved_selectivity() {
 fn calibrate_and_bench_write_their_results() {
     let t = TempDir::new("bench");
     let cal = t.join("cal.json");
-    let o = weir(&[
-        "calibrate",
-        "--bytes",
-        "8M",
-        "--runs",
-        "1",
-        "--threads",
-        "1",
-        "--out",
-        cal.to_str().unwrap(),
-    ]);
+    let calibrate = || {
+        weir(&[
+            "calibrate",
+            "--bytes",
+            "8M",
+            "--runs",
+            "1",
+            "--threads",
+            "1",
+            "--out",
+            cal.to_str().unwrap(),
+        ])
+    };
+    let o = calibrate();
     assert_eq!(o.code, 0, "{}", o.stderr);
     assert!(o.stdout.contains("read GB/s"), "{}", o.stdout);
     let prefix = t.join("scan");
@@ -474,16 +477,6 @@ fn calibrate_and_bench_write_their_results() {
         "{svg}"
     );
     // Results are never overwritten without --force.
-    let o = weir(&[
-        "calibrate",
-        "--bytes",
-        "8M",
-        "--runs",
-        "1",
-        "--threads",
-        "1",
-        "--out",
-        cal.to_str().unwrap(),
-    ]);
+    let o = calibrate();
     assert_eq!(o.code, 2);
 }
