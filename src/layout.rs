@@ -129,11 +129,74 @@ pub fn split_rows(rows: u64, partitions: u32, granule: u64) -> Result<Vec<Range<
         .collect())
 }
 
+/// What a region holds, as structured fields: names are never parsed back, so a table
+/// called `scan` or a column called `out` cannot be mistaken for an output.
+#[derive(Debug, Clone, PartialEq, Eq, Hash)]
+pub enum RegionId {
+    /// Partition `part`'s image of a table column (or `rows`, its row-major records).
+    Input {
+        /// Table name.
+        table: String,
+        /// Partition (= engine).
+        part: u32,
+        /// Column name, or `rows`.
+        column: String,
+    },
+    /// The copy, on one channel, of a table every engine reads whole.
+    Replica {
+        /// Table name.
+        table: String,
+        /// Channel holding this copy.
+        channel: u32,
+        /// Column name, or `rows`.
+        column: String,
+    },
+    /// An engine's output region (or count word) declared by its kernel.
+    Output {
+        /// Kernel name.
+        kernel: String,
+        /// Engine.
+        engine: u32,
+        /// Region name within the engine (`out`, `count`, …).
+        name: String,
+    },
+}
+
+impl RegionId {
+    /// True for input images (partitions and replicas).
+    pub fn is_input(&self) -> bool {
+        !matches!(self, RegionId::Output { .. })
+    }
+}
+
+impl std::fmt::Display for RegionId {
+    /// The file-name form: `readings.p0.v`, `registry.c1.key`, `scan.p0.out`.
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            RegionId::Input {
+                table,
+                part,
+                column,
+            } => write!(f, "{table}.p{part}.{column}"),
+            RegionId::Replica {
+                table,
+                channel,
+                column,
+            } => write!(f, "{table}.c{channel}.{column}"),
+            RegionId::Output {
+                kernel,
+                engine,
+                name,
+            } => write!(f, "{kernel}.p{engine}.{name}"),
+        }
+    }
+}
+
 /// One placed region of device memory.
-#[derive(Debug, Clone, PartialEq, Eq, serde::Serialize)]
+#[derive(Debug, Clone, PartialEq, Eq)]
 pub struct Placed {
-    /// Region name, unique in the map (`readings.p0.v`, `scan.p0.out`, `scan.p0.count`).
-    pub name: String,
+    /// What the region holds.
+    pub id: RegionId,
     /// Channel the region lives on.
     pub channel: u32,
     /// Byte address of the first byte on the channel.
@@ -179,24 +242,30 @@ impl MemoryMap {
         })
     }
 
-    /// Places `bytes` bytes named `name` on `channel` after everything already there.
-    pub fn place(&mut self, name: &str, channel: u32, bytes: u64) -> Result<&Placed> {
+    /// Places `bytes` bytes for `id` on `channel` after everything already there.
+    pub fn place(&mut self, id: RegionId, channel: u32, bytes: u64) -> Result<&Placed> {
+        if self.get(&id).is_some() {
+            return Err(Error::input(format!("region `{id}` is declared twice")));
+        }
+        let name = &id;
         let next = self.next.get_mut(channel as usize).ok_or_else(|| {
             Error::input(format!("region `{name}`: channel {channel} does not exist"))
         })?;
         let words = bytes.div_ceil(self.word_bytes);
         let base = *next;
-        let end = base + words * self.word_bytes;
-        if end > self.channel_bytes {
+        let end = words
+            .checked_mul(self.word_bytes)
+            .and_then(|b| b.checked_add(base));
+        if end.is_none_or(|e| e > self.channel_bytes) {
             return Err(Error::input(format!(
                 "region `{name}` ({bytes} bytes) does not fit channel {channel}: {} of {} bytes are free",
                 self.channel_bytes - base,
                 self.channel_bytes
             )));
         }
-        *next = end;
+        *next = end.expect("checked above");
         self.regions.push(Placed {
-            name: name.to_string(),
+            id,
             channel,
             base,
             bytes,
@@ -210,9 +279,9 @@ impl MemoryMap {
         &self.regions
     }
 
-    /// The region called `name`.
-    pub fn get(&self, name: &str) -> Option<&Placed> {
-        self.regions.iter().find(|r| r.name == name)
+    /// The region holding `id`.
+    pub fn get(&self, id: &RegionId) -> Option<&Placed> {
+        self.regions.iter().find(|r| r.id == *id)
     }
 
     /// Bytes of one memory word.
@@ -257,8 +326,13 @@ mod tests {
     #[test]
     fn overflow_names_region_and_capacity() {
         let mut m = MemoryMap::new(64, 1, 1024).unwrap();
-        m.place("a", 0, 1000).unwrap();
-        let e = m.place("t.p1.v", 0, 100).unwrap_err().to_string();
+        let input = |part: u32| RegionId::Input {
+            table: "t".into(),
+            part,
+            column: "v".into(),
+        };
+        m.place(input(0), 0, 1000).unwrap();
+        let e = m.place(input(1), 0, 100).unwrap_err().to_string();
         assert_eq!(
             e,
             "region `t.p1.v` (100 bytes) does not fit channel 0: 0 of 1024 bytes are free"
@@ -284,7 +358,8 @@ mod tests {
                                  wb in prop::sample::select(vec![1u64, 8, 64, 128])) {
             let mut m = MemoryMap::new(wb, 4, 1 << 20).unwrap();
             for (i, (ch, b)) in sizes.iter().enumerate() {
-                m.place(&format!("r{i}"), *ch, *b).unwrap();
+                let id = RegionId::Output { kernel: "k".into(), engine: i as u32, name: "r".into() };
+                m.place(id, *ch, *b).unwrap();
             }
             let r = m.regions();
             for (i, a) in r.iter().enumerate() {

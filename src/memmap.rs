@@ -1,19 +1,27 @@
 //! `memory_map.vh` and `memory_map.json`: the memory map of a run in a form testbenches
-//! read without a JSON parser — Verilog `localparam`s for every partition's input images
-//! and output regions (file names, base byte addresses, word counts, capacities), one image
-//! per channel, and the bounds of predicates that hardware evaluates directly.
+//! read without a JSON parser — Verilog `localparam`s for every engine's input images and
+//! declared regions (file names, base byte addresses, word counts, capacities), one image
+//! per channel, and the parameters a kernel publishes (such as predicate bounds).
+//!
+//! Names: in a one-table job an engine's images are `P{e}_IN_{COLUMN}_*`; with several
+//! tables the table is part of the name, `P{e}_IN_{TABLE}_{COLUMN}_*` and
+//! `P{e}_{TABLE}_ROW_START`. Declared regions are `P{e}_{REGION}_BASE` (and
+//! `_CAPACITY_WORDS` when sized for the worst case), golden files `P{e}_{OUTPUT}_GOLDEN_HEX`.
 //!
 //! File names are prefixed by the macro `WEIR_DIR` (default empty) because simulators open
 //! files relative to their working directory, which is often not the testbench's folder.
 
 use std::fmt::Write as _;
 
-use crate::job::prepare::{input_region, output_region, Prepared, SCAN};
+use crate::job::prepare::{InputTable, Prepared};
+use crate::kernels::seam::{Share, Sizing};
 
 /// What the memory map is made from.
 pub struct MapInfo<'a> {
     /// The prepared job.
     pub prep: &'a Prepared,
+    /// The golden output names of each engine, in writing order.
+    pub goldens: &'a [Vec<String>],
 }
 
 /// A 64-bit Verilog literal.
@@ -40,7 +48,6 @@ impl MapInfo<'_> {
         let p = self.prep;
         let map = &p.map;
         let wb = map.word_bytes();
-        let table = &p.spec.input.table;
         let mut s = String::new();
         let _ = writeln!(
             s,
@@ -56,22 +63,18 @@ impl MapInfo<'_> {
             p.spec.layout.word_bits
         );
         let _ = writeln!(s, "localparam integer WEIR_WORD_BYTES = {wb};");
-        let _ = writeln!(s, "localparam integer WEIR_PARTITIONS = {};", p.parts.len());
+        let _ = writeln!(s, "localparam integer WEIR_PARTITIONS = {};", p.engines.len());
         let _ = writeln!(s, "localparam integer WEIR_CHANNELS = {};", map.channels());
         for ch in 0..map.channels() {
-            let inputs: Vec<_> = map
+            let end = map
                 .regions()
                 .iter()
-                .filter(|r| r.channel == ch && !r.name.starts_with(&format!("{SCAN}.")))
-                .collect();
-            if inputs.is_empty() || !p.spec.output.channel_images {
-                continue;
-            }
-            let end = inputs
-                .iter()
+                .filter(|r| r.channel == ch && r.id.is_input())
                 .map(|r| r.word_addr(wb) + r.words)
-                .max()
-                .unwrap_or(0);
+                .max();
+            let Some(end) = end.filter(|_| p.spec.output.channel_images) else {
+                continue;
+            };
             let _ = writeln!(s, "// channel {ch}");
             let _ = writeln!(
                 s,
@@ -79,101 +82,111 @@ impl MapInfo<'_> {
             );
             let _ = writeln!(s, "localparam [63:0] CH{ch}_WORDS = {};", dec64(end));
         }
-        let hex = p.formats.contains(&crate::image::ImageFormat::Hex);
-        for (i, part) in p.parts.iter().enumerate() {
-            let _ = writeln!(
-                s,
-                "// partition {i}: table {table}, rows {}..{}",
-                part.rows.start, part.rows.end
-            );
-            let _ = writeln!(s, "localparam integer P{i}_CHANNEL = {};", part.channel);
-            let _ = writeln!(
-                s,
-                "localparam [63:0] P{i}_ROW_START = {};",
-                dec64(part.rows.start)
-            );
-            let _ = writeln!(
-                s,
-                "localparam [63:0] P{i}_ROWS = {};",
-                dec64(part.rows.end - part.rows.start)
-            );
-            let cols: Vec<String> = if p.row_major {
-                vec!["rows".into()]
-            } else {
-                p.schema.iter().map(|(n, _)| n.clone()).collect()
-            };
-            for c in &cols {
-                let name = input_region(table, i, c);
-                let r = map.get(&name).expect("placed");
-                let up = c.to_uppercase();
-                if hex {
-                    let _ = writeln!(
-                        s,
-                        "localparam P{i}_IN_{up}_HEX = {{`WEIR_DIR, \"input/{name}.hex\"}};"
-                    );
-                }
-                let _ = writeln!(
-                    s,
-                    "localparam [63:0] P{i}_IN_{up}_BASE = {};",
-                    hex64(r.base)
-                );
-                let _ = writeln!(
-                    s,
-                    "localparam [63:0] P{i}_IN_{up}_WORDS = {};",
-                    dec64(r.words)
-                );
-            }
-            let out = map.get(&output_region(SCAN, i, "out")).expect("placed");
-            let count = map.get(&output_region(SCAN, i, "count")).expect("placed");
-            let _ = writeln!(s, "localparam [63:0] P{i}_OUT_BASE = {};", hex64(out.base));
-            let _ = writeln!(
-                s,
-                "localparam [63:0] P{i}_OUT_CAPACITY_WORDS = {};",
-                dec64(out.words)
-            );
-            let _ = writeln!(
-                s,
-                "localparam [63:0] P{i}_COUNT_BASE = {};",
-                hex64(count.base)
-            );
-            if hex {
-                let _ = writeln!(
-                    s,
-                    "localparam P{i}_OUT_GOLDEN_HEX = {{`WEIR_DIR, \"golden/{}.hex\"}};",
-                    output_region(SCAN, i, "out")
-                );
-                let _ = writeln!(
-                    s,
-                    "localparam P{i}_COUNT_GOLDEN_HEX = {{`WEIR_DIR, \"golden/{}.hex\"}};",
-                    output_region(SCAN, i, "count")
-                );
-            }
+        for e in 0..p.engines.len() {
+            self.engine_params(&mut s, e);
         }
-        if let Some(ranges) = p.scan.predicate.ranges(&p.schema) {
-            s.push_str("// predicate bounds (a conjunction of range terms on integer columns): lo inclusive, hi exclusive\n");
-            for r in ranges {
-                let (name, ty) = &p.schema[r.col];
-                let (bits, signed) = (ty.bits() + 1, ty.is_signed_int());
-                let (min, max) = ty.int_range();
-                let lo = r.lo.clamp(min, max + 1);
-                let hi = r.hi_excl().clamp(min, max + 1);
-                let up = name.to_uppercase();
-                let sg = if signed { "signed " } else { "" };
+        if let Some(sec) = p.kernel.map_section().filter(|m| !m.params.is_empty()) {
+            let _ = writeln!(s, "// {}", sec.comment);
+            for m in sec.params {
+                let sg = if m.signed { "signed " } else { "" };
                 let _ = writeln!(
                     s,
-                    "localparam {sg}[{}:0] PRED_{up}_LO = {};",
-                    bits - 1,
-                    lit(lo, bits, signed)
-                );
-                let _ = writeln!(
-                    s,
-                    "localparam {sg}[{}:0] PRED_{up}_HI = {};",
-                    bits - 1,
-                    lit(hi, bits, signed)
+                    "localparam {sg}[{}:0] {} = {};",
+                    m.bits - 1,
+                    m.name,
+                    lit(m.value, m.bits, m.signed)
                 );
             }
         }
         s
+    }
+
+    /// The parameter-name prefix of table `t`'s images and rows (empty in one-table jobs).
+    fn table_tag(&self, t: &InputTable) -> String {
+        if self.prep.tables.len() == 1 {
+            String::new()
+        } else {
+            format!("{}_", t.name.to_uppercase())
+        }
+    }
+
+    /// Engine `e`'s parameters: its rows, input images, regions and golden files.
+    fn engine_params(&self, s: &mut String, e: usize) {
+        let p = self.prep;
+        let plan = &p.engines[e];
+        let hex = p.formats.contains(&crate::image::ImageFormat::Hex);
+        for (t, r) in p.tables.iter().zip(&plan.rows) {
+            let tag = self.table_tag(t);
+            match t.share {
+                Share::Partitioned => {
+                    let _ = writeln!(
+                        s,
+                        "// partition {e}: table {}, rows {}..{}",
+                        t.name, r.start, r.end
+                    );
+                }
+                Share::Replicated => {
+                    let _ = writeln!(
+                        s,
+                        "// engine {e}: table {} read whole, {} rows, from the copy on channel {}",
+                        t.name, r.end, plan.channel
+                    );
+                }
+            }
+            if std::ptr::eq(t, &p.tables[0]) {
+                let _ = writeln!(s, "localparam integer P{e}_CHANNEL = {};", plan.channel);
+            }
+            if t.share == Share::Partitioned {
+                let _ = writeln!(s, "localparam [63:0] P{e}_{tag}ROW_START = {};", dec64(r.start));
+                let _ = writeln!(
+                    s,
+                    "localparam [63:0] P{e}_{tag}ROWS = {};",
+                    dec64(r.end - r.start)
+                );
+            }
+            for col in p.image_columns(t) {
+                let reg = p.region(&p.input_id(t, e, &col));
+                let up = format!("{tag}{}", col.to_uppercase());
+                let file = match t.share {
+                    Share::Partitioned => reg.id.to_string(),
+                    Share::Replicated => format!("{}.{col}", t.name),
+                };
+                if hex {
+                    let _ = writeln!(
+                        s,
+                        "localparam P{e}_IN_{up}_HEX = {{`WEIR_DIR, \"input/{file}.hex\"}};"
+                    );
+                }
+                let _ = writeln!(s, "localparam [63:0] P{e}_IN_{up}_BASE = {};", hex64(reg.base));
+                let _ = writeln!(
+                    s,
+                    "localparam [63:0] P{e}_IN_{up}_WORDS = {};",
+                    dec64(reg.words)
+                );
+            }
+        }
+        for (i, need) in plan.regions.iter().enumerate() {
+            let reg = p.region(&p.output_id(e, i));
+            let up = need.name.to_uppercase();
+            let _ = writeln!(s, "localparam [63:0] P{e}_{up}_BASE = {};", hex64(reg.base));
+            if let Sizing::Capacity(_) = need.sizing {
+                let _ = writeln!(
+                    s,
+                    "localparam [63:0] P{e}_{up}_CAPACITY_WORDS = {};",
+                    dec64(reg.words)
+                );
+            }
+        }
+        if hex {
+            for name in self.goldens.get(e).into_iter().flatten() {
+                let _ = writeln!(
+                    s,
+                    "localparam P{e}_{}_GOLDEN_HEX = {{`WEIR_DIR, \"golden/{}.p{e}.{name}.hex\"}};",
+                    name.to_uppercase(),
+                    p.kernel.name()
+                );
+            }
+        }
     }
 
     /// The same map as JSON.
@@ -183,28 +196,35 @@ impl MapInfo<'_> {
             .map
             .regions()
             .iter()
-            .map(|r| serde_json::json!({"name": r.name, "channel": r.channel, "base": r.base, "bytes": r.bytes, "words": r.words}))
+            .map(|r| serde_json::json!({"name": r.id.to_string(), "channel": r.channel, "base": r.base, "bytes": r.bytes, "words": r.words}))
             .collect();
+        let first = p.tables.iter().position(|t| t.share == Share::Partitioned);
         let parts: Vec<serde_json::Value> = p
-            .parts
+            .engines
             .iter()
             .enumerate()
-            .map(|(i, part)| serde_json::json!({"partition": i, "channel": part.channel, "row_start": part.rows.start, "rows": part.rows.end - part.rows.start}))
+            .map(|(i, e)| {
+                let mut v = serde_json::json!({"partition": i, "channel": e.channel});
+                if let Some(k) = first {
+                    v["row_start"] = e.rows[k].start.into();
+                    v["rows"] = (e.rows[k].end - e.rows[k].start).into();
+                }
+                v
+            })
             .collect();
-        let ranges = p.scan.predicate.ranges(&p.schema).map(|rs| {
-            rs.iter()
-                .map(|r| serde_json::json!({"column": p.schema[r.col].0, "lo": r.lo.to_string(), "hi_exclusive": r.hi_excl().to_string()}))
-                .collect::<Vec<_>>()
-        });
-        let v = serde_json::json!({
+        let mut v = serde_json::json!({
             "format_version": 1,
             "word_bits": p.spec.layout.word_bits,
             "channel_bytes": p.map.channel_bytes(),
             "channels": p.map.channels(),
             "partitions": parts,
             "regions": regions,
-            "predicate_ranges": ranges,
         });
+        if let Some(sec) = p.kernel.map_section() {
+            for (k, val) in sec.json {
+                v[k] = val;
+            }
+        }
         serde_json::to_string_pretty(&v).expect("json") + "\n"
     }
 }

@@ -44,33 +44,19 @@ fn execute(
 /// Prints the short summary of one run.
 fn print_summary(dir: &Path, s: &RunSummary) {
     say!("wrote {} files to {}", s.files, dir.display());
-    let achieved = if s.rows > 0 {
-        s.matches as f64 / s.rows as f64
-    } else {
-        0.0
-    };
-    match s.requested_selectivity {
-        Some(r) => say!(
-            "selectivity: requested {:.4}%, achieved {:.4}% ({} of {} rows)",
-            r * 100.0,
-            achieved * 100.0,
-            s.matches,
-            s.rows
-        ),
-        None => say!(
-            "selectivity: {:.4}% ({} of {} rows)",
-            achieved * 100.0,
-            s.matches,
-            s.rows
-        ),
+    for (column, r) in &s.requested {
+        say!("input: column {column}: requested selectivity {:.4}%", r * 100.0);
     }
-    let mut t = TextTable::new(&["engine", "channel", "rows", "matches"]);
+    for line in &s.kernel_lines {
+        say!("{line}");
+    }
+    let mut t = TextTable::new(&["engine", "channel", "rows", "results"]);
     for p in &s.parts {
         t.row(vec![
             p.partition.to_string(),
             p.channel.to_string(),
             p.rows.to_string(),
-            p.matches.to_string(),
+            p.records.to_string(),
         ]);
     }
     say!("\n{}", t.render());
@@ -104,15 +90,7 @@ pub fn run(a: RunArgs) -> Result<Outcome> {
 /// `weir demo`.
 pub fn demo(a: DemoArgs) -> Result<Outcome> {
     let spec = JobSpec::from_toml(DEMO_JOB, Path::new("data/jobs/demo.toml"))?;
-    say!(
-        "weir demo: wind-farm telemetry, predicate `{}`",
-        demo_predicate(&spec)
-    );
+    say!("weir demo: {}", spec.name);
     execute(&spec, Path::new("."), &a.out, a.force, None)?;
     Ok(Outcome::Ok)
-}
-
-fn demo_predicate(spec: &JobSpec) -> &str {
-    let job::spec::KernelSpec::Scan(s) = &spec.kernel;
-    &s.predicate
 }

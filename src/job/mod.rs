@@ -1,10 +1,12 @@
 //! Jobs: the TOML job file, checking it into a plan, and running the plan into an output
-//! directory (inputs, golden outputs, ledger, memory map, manifest, timing).
+//! directory (inputs, golden outputs, ledger, memory map, manifest, timing). Kernels are
+//! reached only through the seam in `kernels::seam`.
 //!
 //! ```text
-//!   job.toml ─► spec ─► prepare (source, predicate, partitions, memory map) ─► run ─► OutDir
+//!   job.toml ─► spec ─► prepare (tables, bound kernel, partitions, memory map) ─► run ─► OutDir
 //! ```
 
+pub mod files;
 pub mod outdir;
 pub mod prepare;
 pub mod run;
@@ -40,7 +42,7 @@ pub fn run(
             }
             r.map(|seed| {
                 let mut s = spec.clone();
-                s.input.seed = seed;
+                s.set_seed(seed);
                 prepare(&s, job_dir).map(|p| (Some(seed), p))
             })
             .collect::<Result<_>>()?

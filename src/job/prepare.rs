@@ -1,16 +1,17 @@
-//! Turning a parsed job into a checked plan before anything is written: the input source,
-//! bound predicate, partitions, placement and the full memory map. Every bad-input error
-//! a run can meet is found here.
+//! Turning a parsed job into a checked plan before anything is written: the input tables,
+//! the bound kernel, partitions, placement and the full memory map. Every bad-input error
+//! a run can meet is found here. Nothing here knows a kernel: the plan follows what the
+//! bound kernel declares (its tables and how engines share them, its regions).
 
 use std::path::Path;
+use std::sync::Arc;
 
 use crate::error::{Error, Result};
 use crate::gen::{ColumnGen, Dist, Shape, Skew, TableGen};
 use crate::image::ImageFormat;
-use crate::job::spec::{ColumnSpec, JobSpec, KernelSpec, PlacementSpec, ScanSpec};
-use crate::kernels::predicate::{self, Bound};
-use crate::kernels::scan::{ScanOutput, ScanParams};
-use crate::layout::{self, MemoryMap, Placement};
+use crate::job::spec::{ColumnSpec, InputSpec, JobSpec, LayoutSpec, PlacementSpec, DEFAULT_TABLE};
+use crate::kernels::seam::{Kernel, RegionNeed, Share, TableSchema};
+use crate::layout::{self, MemoryMap, Placed, Placement, RegionId};
 use crate::table::{self, ElemType, QFormat, Table};
 
 /// Where the input rows come from.
@@ -48,50 +49,106 @@ impl Source {
     }
 }
 
-/// One partition's plan.
+/// One input table of the job, as the kernel reads it.
+#[derive(Debug)]
+pub struct InputTable {
+    /// Table name.
+    pub name: String,
+    /// How the engines share it.
+    pub share: Share,
+    /// Where its rows come from.
+    pub source: Source,
+    /// (column, type) in table order.
+    pub schema: Vec<(String, ElemType)>,
+    /// Fixed-point format of each column given in the job (by job column order).
+    pub q: Vec<Option<QFormat>>,
+    /// The whole table, for a replicated table (every engine reads it).
+    pub whole: Option<Table>,
+}
+
+/// One engine's plan.
 #[derive(Debug, Clone)]
-pub struct PartPlan {
-    /// Global rows.
-    pub rows: std::ops::Range<u64>,
-    /// Channel.
+pub struct EnginePlan {
+    /// The channel its partitions and regions live on.
     pub channel: u32,
+    /// Global rows it reads of each input table (kernel input order; a replicated table
+    /// is read whole).
+    pub rows: Vec<std::ops::Range<u64>>,
+    /// The regions its kernel declared, in declaration order.
+    pub regions: Vec<RegionNeed>,
 }
 
 /// A checked job, ready to run.
-#[derive(Debug, Clone)]
+#[derive(Debug)]
 pub struct Prepared {
-    /// The job with defaults (and generator bounds taken from the predicate) filled in.
+    /// The job with defaults (and generator bounds taken from the kernel) filled in.
     pub spec: JobSpec,
-    /// Input rows.
-    pub source: Source,
-    /// Input schema.
-    pub schema: Vec<(String, ElemType)>,
-    /// Scan parameters.
-    pub scan: ScanParams,
-    /// Partitions.
-    pub parts: Vec<PartPlan>,
+    /// The bound kernel.
+    pub kernel: Arc<dyn Kernel>,
+    /// Input tables in kernel input order.
+    pub tables: Vec<InputTable>,
+    /// Engines (= partitions).
+    pub engines: Vec<EnginePlan>,
     /// Every region on the device.
     pub map: MemoryMap,
     /// Row-major (interleaved) input images.
     pub row_major: bool,
     /// Image formats to write.
     pub formats: Vec<ImageFormat>,
-    /// Fixed-point format of each column given in the job (by job column order).
-    pub q: Vec<Option<QFormat>>,
 }
 
-/// The kernel name used in file names and the ledger.
-pub const SCAN: &str = "scan";
+impl Prepared {
+    /// The region of `id`; every region was placed by [`prepare`].
+    pub fn region(&self, id: &RegionId) -> &Placed {
+        self.map.get(id).expect("every region was placed in prepare")
+    }
 
-/// Region name of partition `p`'s input column (or `rows` for row-major records).
-pub fn input_region(table: &str, p: usize, col: &str) -> String {
-    format!("{table}.p{p}.{col}")
+    /// The image names of table `t` (its columns, or `rows` for a row-major record image).
+    pub fn image_columns(&self, t: &InputTable) -> Vec<String> {
+        if self.row_major {
+            vec![ROWS.into()]
+        } else {
+            t.schema.iter().map(|(n, _)| n.clone()).collect()
+        }
+    }
+
+    /// The region holding engine `e`'s image `column` of table `t` (its partition, or the
+    /// replica on its channel).
+    pub fn input_id(&self, t: &InputTable, e: usize, column: &str) -> RegionId {
+        match t.share {
+            Share::Partitioned => RegionId::Input {
+                table: t.name.clone(),
+                part: e as u32,
+                column: column.into(),
+            },
+            Share::Replicated => RegionId::Replica {
+                table: t.name.clone(),
+                channel: self.engines[e].channel,
+                column: column.into(),
+            },
+        }
+    }
+
+    /// The region of engine `e`'s declared region `r`.
+    pub fn output_id(&self, e: usize, r: usize) -> RegionId {
+        RegionId::Output {
+            kernel: self.kernel.name().into(),
+            engine: e as u32,
+            name: self.engines[e].regions[r].name.clone(),
+        }
+    }
+
+    /// Channels hosting at least one engine, ascending.
+    pub fn engine_channels(&self) -> Vec<u32> {
+        let mut c: Vec<u32> = self.engines.iter().map(|e| e.channel).collect();
+        c.sort_unstable();
+        c.dedup();
+        c
+    }
 }
 
-/// Region name of engine `p`'s output (`out`) or count word (`count`).
-pub fn output_region(kernel: &str, p: usize, what: &str) -> String {
-    format!("{kernel}.p{p}.{what}")
-}
+/// The image name of a row-major record image.
+pub const ROWS: &str = "rows";
 
 fn is_identifier(s: &str) -> bool {
     let mut c = s.chars();
@@ -99,28 +156,43 @@ fn is_identifier(s: &str) -> bool {
         && c.all(|ch| ch.is_ascii_alphanumeric() || ch == '_')
 }
 
+/// Checks that `name` is an identifier: names reach file names and Verilog parameters,
+/// so nothing else (no `/`, no `..`) may pass.
+fn check_identifier(what: &str, name: &str) -> Result<()> {
+    if is_identifier(name) {
+        Ok(())
+    } else {
+        Err(Error::input(format!(
+            "{what} `{name}`: names must be identifiers ([A-Za-z_][A-Za-z0-9_]*) so they can name files and Verilog parameters"
+        )))
+    }
+}
+
+/// Checks that no two of `names` differ only in case (Verilog parameters are made from
+/// upper-cased names).
+fn check_unique(what: &str, names: &[&str]) -> Result<()> {
+    for (i, a) in names.iter().enumerate() {
+        if let Some(b) = names[..i].iter().find(|b| b.eq_ignore_ascii_case(a)) {
+            return Err(Error::input(format!(
+                "{what} `{b}` and `{a}` differ only in case; their Verilog parameters would clash"
+            )));
+        }
+    }
+    Ok(())
+}
+
 /// Checks and plans `spec`; relative file paths are taken from `job_dir`.
 pub fn prepare(spec: &JobSpec, job_dir: &Path) -> Result<Prepared> {
     let mut spec = spec.clone();
-    let KernelSpec::Scan(scan_spec) = spec.kernel.clone();
+    if let Some(i) = &mut spec.input {
+        i.table.get_or_insert_with(|| DEFAULT_TABLE.into());
+    }
     let l = spec.layout.clone();
     let word_bytes = layout::word_bytes(l.word_bits)?;
     if l.partitions == 0 {
         return Err(Error::input("layout.partitions must be at least 1"));
     }
-    let formats = spec
-        .output
-        .formats
-        .iter()
-        .map(|f| match f.as_str() {
-            "hex" => Ok(ImageFormat::Hex),
-            "bin" => Ok(ImageFormat::Bin),
-            "npy" => Ok(ImageFormat::Npy),
-            other => Err(Error::input(format!(
-                "output.formats: unknown format `{other}` (expected hex, bin or npy)"
-            ))),
-        })
-        .collect::<Result<Vec<_>>>()?;
+    let formats = image_formats(&spec.output.formats)?;
     let row_major = match l.order.as_str() {
         "column" => false,
         "row" => true,
@@ -132,44 +204,122 @@ pub fn prepare(spec: &JobSpec, job_dir: &Path) -> Result<Prepared> {
     };
 
     // Files are read first (their schema is the table's); generator bounds may come from
-    // the predicate, so generators are built after binding it.
-    let loaded = load_files(&spec, job_dir)?;
-    let schema: Vec<(String, ElemType)> = match (&loaded, spec.input.generator.as_deref()) {
+    // the kernel, so generators are built after binding it.
+    let mut found = Vec::new();
+    for (name, t) in spec.table_specs()? {
+        check_identifier("table", &name)?;
+        let loaded = load_files(t, &name, job_dir)?;
+        let schema = table_schema(t, loaded.as_ref());
+        let rows = match &loaded {
+            Some(t) => t.rows() as u64,
+            None => t.rows.unwrap_or(0),
+        };
+        found.push((name, loaded, schema, rows));
+    }
+    let names: Vec<&str> = found.iter().map(|f| f.0.as_str()).collect();
+    check_unique("table", &names)?;
+    for (name, _, schema, _) in &found {
+        let cols: Vec<&str> = schema.iter().map(|(n, _)| n.as_str()).collect();
+        for (c, ty) in schema {
+            check_identifier(&format!("table `{name}`: column"), c)?;
+            layout::check_elem_fits_word(*ty, l.word_bits, &format!("column `{c}`"))?;
+            if row_major && ty.is_sub_byte() {
+                return Err(Error::input(format!(
+                    "column `{c}`: sub-byte type {ty} cannot be interleaved in a row-major image; use order = \"column\""
+                )));
+            }
+        }
+        check_unique(&format!("table `{name}`: column"), &cols)?;
+    }
+    let schemas: Vec<TableSchema> = found
+        .iter()
+        .map(|(name, _, columns, rows)| TableSchema {
+            name: name.clone(),
+            columns: columns.clone(),
+            rows: *rows,
+        })
+        .collect();
+    let kernel = spec.kernel.bind(&schemas)?;
+    let uses = kernel.inputs();
+    if let Some((name, ..)) = found
+        .iter()
+        .find(|f| !uses.iter().any(|u| u.table == f.0))
+    {
+        return Err(Error::input(format!(
+            "table `{name}` is not read by the {} kernel",
+            kernel.name()
+        )));
+    }
+    let mut specs = spec.table_specs_mut();
+    let mut tables = Vec::new();
+    for u in &uses {
+        let k = found
+            .iter()
+            .position(|f| f.0 == u.table)
+            .ok_or_else(|| Error::input(format!("kernel: no input table is named `{}`", u.table)))?;
+        let (name, schema) = (found[k].0.clone(), found[k].2.clone());
+        let loaded = found[k].1.take();
+        let input = &mut *specs[k];
+        let source = match loaded {
+            Some(t) => Source::Loaded(t),
+            None => Source::Gen(build_gen(input, &name, &schema, &kernel.select_ranges(&name))?),
+        };
+        let q = q_formats(input)?;
+        let whole = (u.share == Share::Replicated).then(|| source.rows_of(0..source.rows()));
+        tables.push(InputTable {
+            name,
+            share: u.share,
+            source,
+            schema,
+            q,
+            whole,
+        });
+    }
+    drop(specs);
+    let (engines, map) = place(&l, word_bytes, row_major, &tables, kernel.as_ref())?;
+    Ok(Prepared {
+        spec,
+        kernel,
+        tables,
+        engines,
+        map,
+        row_major,
+        formats,
+    })
+}
+
+fn image_formats(names: &[String]) -> Result<Vec<ImageFormat>> {
+    names
+        .iter()
+        .map(|f| match f.as_str() {
+            "hex" => Ok(ImageFormat::Hex),
+            "bin" => Ok(ImageFormat::Bin),
+            "npy" => Ok(ImageFormat::Npy),
+            other => Err(Error::input(format!(
+                "output.formats: unknown format `{other}` (expected hex, bin or npy)"
+            ))),
+        })
+        .collect()
+}
+
+/// The schema of a table: its files', the telemetry generator's, or the listed columns.
+fn table_schema(input: &InputSpec, loaded: Option<&Table>) -> Vec<(String, ElemType)> {
+    match (loaded, input.generator.as_deref()) {
         (Some(t), _) => t.schema(),
         (None, Some("telemetry")) => crate::gen::telemetry::SCHEMA
             .iter()
             .map(|(n, t)| (n.to_string(), *t))
             .collect(),
-        (None, _) => spec
-            .input
+        (None, _) => input
             .columns
             .iter()
             .map(|c| (c.name.clone(), c.ty))
             .collect(),
-    };
-    let pred = predicate::compile(&scan_spec.predicate, &schema)
-        .map_err(|e| Error::input(format!("kernel.predicate: {e}\n{}", e.caret())))?;
-    let source = match loaded {
-        Some(t) => Source::Loaded(t),
-        None => Source::Gen(build_gen(&mut spec, &schema, &pred)?),
-    };
-    for (name, ty) in &schema {
-        if !is_identifier(name) {
-            return Err(Error::input(format!(
-                "column `{name}`: names must be identifiers ([A-Za-z_][A-Za-z0-9_]*) so they can name Verilog parameters"
-            )));
-        }
-        layout::check_elem_fits_word(*ty, l.word_bits, &format!("column `{name}`"))?;
-        if row_major && ty.is_sub_byte() {
-            return Err(Error::input(format!(
-                "column `{name}`: sub-byte type {ty} cannot be interleaved in a row-major image; use order = \"column\""
-            )));
-        }
     }
-    let scan = scan_params(&scan_spec, &schema, pred, source.rows())?;
-    let types: Vec<ElemType> = schema.iter().map(|(_, t)| *t).collect();
-    let q = spec
-        .input
+}
+
+fn q_formats(input: &InputSpec) -> Result<Vec<Option<QFormat>>> {
+    input
         .columns
         .iter()
         .map(|c| {
@@ -183,63 +333,110 @@ pub fn prepare(spec: &JobSpec, job_dir: &Path) -> Result<Prepared> {
                 })
                 .transpose()
         })
-        .collect::<Result<Vec<_>>>()?;
+        .collect()
+}
 
-    // Partitions and placement.
-    let bits: Vec<u32> = schema.iter().map(|(_, t)| t.bits()).collect();
-    let g = layout::granule(l.word_bits, &bits, row_major);
-    let rows = source.rows();
-    let ranges = match &l.partition_rows {
-        None => layout::split_rows(rows, l.partitions, g)?,
-        Some(counts) => explicit_split(counts, l.partitions, rows, g)?,
-    };
+/// Splits the partitioned tables over the engines and places every region: first each
+/// engine's partitions, then one copy of each replicated table per engine channel, then
+/// the regions each engine's kernel declares.
+fn place(
+    l: &LayoutSpec,
+    word_bytes: u64,
+    row_major: bool,
+    tables: &[InputTable],
+    kernel: &dyn Kernel,
+) -> Result<(Vec<EnginePlan>, MemoryMap)> {
     let placement = match &l.placement {
         PlacementSpec::Name(n) => Placement::parse(n)?,
         PlacementSpec::List(v) => Placement::Explicit(v.clone()),
     };
     let channels = placement.channels(l.partitions, l.channels)?;
-    let mut map = MemoryMap::new(word_bytes, l.channels, l.channel_mib << 20)?;
-    let table = &spec.input.table;
-    for (p, r) in ranges.iter().enumerate() {
-        let n = r.end - r.start;
+    let partitioned = tables.iter().filter(|t| t.share == Share::Partitioned).count();
+    if l.partition_rows.is_some() && partitioned != 1 {
+        return Err(Error::input(
+            "layout.partition_rows: only a job with one partitioned table can give explicit sizes",
+        ));
+    }
+    let mut ranges = Vec::new();
+    for t in tables {
+        let bits: Vec<u32> = t.schema.iter().map(|(_, ty)| ty.bits()).collect();
+        let g = layout::granule(l.word_bits, &bits, row_major);
+        let rows = t.source.rows();
+        ranges.push(match (t.share, &l.partition_rows) {
+            (Share::Replicated, _) => vec![0..rows; l.partitions as usize],
+            (Share::Partitioned, None) => layout::split_rows(rows, l.partitions, g)?,
+            (Share::Partitioned, Some(counts)) => explicit_split(counts, l.partitions, rows, g)?,
+        });
+    }
+    let channel_bytes = l
+        .channel_mib
+        .checked_mul(1 << 20)
+        .ok_or_else(|| Error::input(format!("layout.channel_mib = {} is too large", l.channel_mib)))?;
+    let mut map = MemoryMap::new(word_bytes, l.channels, channel_bytes)?;
+    let image_bytes = |t: &InputTable, col: &str, n: u64| -> u64 {
         if row_major {
-            let rec: u64 = bits.iter().map(|&b| u64::from(b / 8)).sum();
-            map.place(&input_region(table, p, "rows"), channels[p], n * rec)?;
+            let rec: u64 = t.schema.iter().map(|(_, ty)| u64::from(ty.bits() / 8)).sum();
+            n * rec
         } else {
-            for (name, ty) in &schema {
-                map.place(
-                    &input_region(table, p, name),
-                    channels[p],
-                    table::byte_len(*ty, n),
-                )?;
+            let ty = t.schema.iter().find(|(c, _)| c == col).expect("a column").1;
+            table::byte_len(ty, n)
+        }
+    };
+    let image_columns = |t: &InputTable| -> Vec<String> {
+        if row_major {
+            vec![ROWS.into()]
+        } else {
+            t.schema.iter().map(|(n, _)| n.clone()).collect()
+        }
+    };
+    for (p, &ch) in channels.iter().enumerate() {
+        for (t, r) in tables.iter().zip(&ranges) {
+            if t.share == Share::Partitioned {
+                for col in image_columns(t) {
+                    let id = RegionId::Input {
+                        table: t.name.clone(),
+                        part: p as u32,
+                        column: col.clone(),
+                    };
+                    map.place(id, ch, image_bytes(t, &col, r[p].end - r[p].start))?;
+                }
             }
         }
     }
-    for (p, r) in ranges.iter().enumerate() {
-        let cap = scan.capacity_bytes(&types, r.end - r.start);
-        map.place(&output_region(SCAN, p, "out"), channels[p], cap)?;
-        map.place(
-            &output_region(SCAN, p, "count"),
-            channels[p],
-            crate::kernels::scan::COUNT_BYTES,
-        )?;
+    let mut used = channels.clone();
+    used.sort_unstable();
+    used.dedup();
+    for &ch in &used {
+        for t in tables.iter().filter(|t| t.share == Share::Replicated) {
+            for col in image_columns(t) {
+                let id = RegionId::Replica {
+                    table: t.name.clone(),
+                    channel: ch,
+                    column: col.clone(),
+                };
+                map.place(id, ch, image_bytes(t, &col, t.source.rows()))?;
+            }
+        }
     }
-    let parts = ranges
-        .into_iter()
-        .zip(channels)
-        .map(|(rows, channel)| PartPlan { rows, channel })
-        .collect();
-    Ok(Prepared {
-        spec,
-        source,
-        schema,
-        scan,
-        parts,
-        map,
-        row_major,
-        formats,
-        q,
-    })
+    let mut engines = Vec::new();
+    for (p, &channel) in channels.iter().enumerate() {
+        let rows: Vec<_> = ranges.iter().map(|r| r[p].clone()).collect();
+        let regions = kernel.regions(p as u32, &rows);
+        for need in &regions {
+            let id = RegionId::Output {
+                kernel: kernel.name().into(),
+                engine: p as u32,
+                name: need.name.clone(),
+            };
+            map.place(id, channel, need.sizing.bytes())?;
+        }
+        engines.push(EnginePlan {
+            channel,
+            rows,
+            regions,
+        });
+    }
+    Ok((engines, map))
 }
 
 fn explicit_split(
@@ -275,64 +472,8 @@ fn explicit_split(
     Ok(out)
 }
 
-fn scan_params(
-    s: &ScanSpec,
-    schema: &[(String, ElemType)],
-    predicate: Bound,
-    rows: u64,
-) -> Result<ScanParams> {
-    let col_index = |name: &str| {
-        schema
-            .iter()
-            .position(|(n, _)| n == name)
-            .ok_or_else(|| Error::input(format!("kernel.project: unknown column `{name}`")))
-    };
-    let output = match s.output.as_str() {
-        "row_ids" => ScanOutput::RowIds,
-        "bitmap" => ScanOutput::Bitmap,
-        "project" => {
-            if s.project.is_empty() {
-                return Err(Error::input("kernel.project: list the columns to project"));
-            }
-            let cols = s
-                .project
-                .iter()
-                .map(|c| col_index(c))
-                .collect::<Result<Vec<_>>>()?;
-            if let Some(&c) = cols.iter().find(|&&c| schema[c].1.is_sub_byte()) {
-                return Err(Error::input(format!(
-                    "kernel.project: sub-byte column `{}` cannot be projected into records",
-                    schema[c].0
-                )));
-            }
-            ScanOutput::Project(cols)
-        }
-        o => {
-            return Err(Error::input(format!(
-                "kernel.output: `{o}` (expected row_ids, bitmap or project)"
-            )))
-        }
-    };
-    let global_ids = match s.row_ids.as_str() {
-        "global" => true,
-        "local" => false,
-        o => {
-            return Err(Error::input(format!(
-                "kernel.row_ids: `{o}` (expected global or local)"
-            )))
-        }
-    };
-    Ok(ScanParams {
-        predicate: crate::kernels::scan::fuse_ranges(&predicate, schema),
-        output,
-        global_ids,
-        wide_ids: rows > u64::from(u32::MAX),
-    })
-}
-
 /// The table read from the job's CSV or column files, if it names any.
-fn load_files(spec: &JobSpec, job_dir: &Path) -> Result<Option<Table>> {
-    let input = &spec.input;
+fn load_files(input: &InputSpec, table: &str, job_dir: &Path) -> Result<Option<Table>> {
     if let Some(csv) = &input.csv {
         let path = job_dir.join(csv);
         let given: Option<Vec<(String, ElemType)>> = (!input.columns.is_empty()).then(|| {
@@ -342,7 +483,7 @@ fn load_files(spec: &JobSpec, job_dir: &Path) -> Result<Option<Table>> {
                 .map(|c| (c.name.clone(), c.ty))
                 .collect()
         });
-        return table::read_csv(&path, &input.table, given.as_deref()).map(Some);
+        return table::read_csv(&path, table, given.as_deref()).map(Some);
     }
     let from_files = input.columns.iter().filter(|c| c.file.is_some()).count();
     if from_files == 0 {
@@ -368,15 +509,20 @@ fn load_files(spec: &JobSpec, job_dir: &Path) -> Result<Option<Table>> {
         };
         cols.push(col);
     }
-    Table::new(&input.table, cols)
+    Table::new(table, cols)
         .map(Some)
         .map_err(Error::input)
 }
 
-/// The generator the job describes (telemetry, or one generator per column).
-fn build_gen(spec: &mut JobSpec, schema: &[(String, ElemType)], pred: &Bound) -> Result<TableGen> {
-    let input = &mut spec.input;
-    let table = input.table.clone();
+/// The generator the job describes (telemetry, or one generator per column); `ranges`
+/// are the kernel's hints for `select` columns that leave their bounds out.
+fn build_gen(
+    input: &mut InputSpec,
+    table: &str,
+    schema: &[(String, ElemType)],
+    ranges: &[(String, i128, i128)],
+) -> Result<TableGen> {
+    let table = table.to_string();
     let rows = input
         .rows
         .ok_or_else(|| Error::input("input.rows: generated tables need a row count"))?;
@@ -402,13 +548,11 @@ fn build_gen(spec: &mut JobSpec, schema: &[(String, ElemType)], pred: &Bound) ->
             "input: give columns (generated or from files) or a csv file",
         ));
     }
-    let ranges = pred.ranges(schema);
+    debug_assert_eq!(schema.len(), input.columns.len());
     let mut gens = Vec::new();
-    for (i, c) in input.columns.iter_mut().enumerate() {
-        let range = ranges
-            .as_ref()
-            .and_then(|rs| rs.iter().find(|r| r.col == i));
-        let g = column_gen(c, range.map(|r| (r.lo, r.hi)))?;
+    for c in input.columns.iter_mut() {
+        let range = ranges.iter().find(|r| r.0 == c.name);
+        let g = column_gen(c, range.map(|r| (r.1, r.2)))?;
         g.validate().map_err(Error::input)?;
         gens.push(g);
     }

@@ -1,31 +1,37 @@
-//! Running a prepared job: partition by partition, generate or slice the rows, write the
-//! input images, run the kernel, write the golden outputs; then the ledger, memory map,
-//! manifest and timing. Only one partition's rows are held at a time.
+//! Running a prepared job, engine by engine:
+//!
+//! ```text
+//!   for each engine e:  rows of its partitions ─► input images (+ channel images, arrays)
+//!                                            └─► kernel.run(e) ─► golden images + arrays
+//!                                                              └─► ledger (merged)
+//!   then: replicated tables' images, ledger, memory map, manifest, timing
+//! ```
+//!
+//! Only one engine's partitions are held at a time (replicated tables are held whole).
+//! Nothing here knows a kernel: files follow what the kernel declared and returned.
 
-use std::io::Write;
 use std::time::Instant;
 
 use crate::error::{Error, Result};
-use crate::image::{self, ImageFormat, Segment};
-use crate::job::outdir::{OutDir, OutFile};
-use crate::job::prepare::{input_region, output_region, Prepared, SCAN};
-use crate::kernels::scan::{self, EngineIo, Isa, ScanOutput};
-use crate::layout::Placed;
-use crate::ledger::Ledger;
+use crate::job::files::RunFiles;
+use crate::job::outdir::OutDir;
+use crate::job::prepare::{InputTable, Prepared};
+use crate::kernels::seam::{Arrays, EngineCtx, EngineRun, EngineTable, Golden, Share};
+use crate::ledger::{Direction, Ledger};
 use crate::manifest::{FileEntry, Manifest, Role, MANIFEST_FILE, MANIFEST_FORMAT_VERSION};
 use crate::table::{self, Table};
 
-/// What one partition produced.
+/// What one engine did.
 #[derive(Debug, Clone, serde::Serialize)]
 pub struct PartSummary {
-    /// Partition index.
+    /// Engine (= partition) index.
     pub partition: u32,
     /// Channel.
     pub channel: u32,
-    /// Rows in the partition.
+    /// Rows it read from its partitioned inputs.
     pub rows: u64,
-    /// Matching rows.
-    pub matches: u64,
+    /// Result rows (matches, pairs).
+    pub records: u64,
     /// Seconds in the kernel.
     pub kernel_s: f64,
 }
@@ -35,17 +41,15 @@ pub struct PartSummary {
 pub struct RunSummary {
     /// Files written (including manifest and timing).
     pub files: usize,
-    /// Input rows.
-    pub rows: u64,
     /// Input bytes the kernel read from device memory.
     pub input_bytes: u64,
-    /// Matching rows.
-    pub matches: u64,
-    /// Requested selectivity of the generator's `select` column, if any.
-    pub requested_selectivity: Option<f64>,
+    /// Requested selectivity of each generated `select` column, as (table.column, fraction).
+    pub requested: Vec<(String, f64)>,
+    /// The kernel's summary lines.
+    pub kernel_lines: Vec<String>,
     /// Merged ledger.
     pub ledger: Ledger,
-    /// Per partition.
+    /// Per engine.
     pub parts: Vec<PartSummary>,
     /// Seconds generating or slicing input rows.
     pub gen_s: f64,
@@ -53,101 +57,23 @@ pub struct RunSummary {
     pub kernel_s: f64,
     /// Seconds writing files.
     pub write_s: f64,
-    /// Instruction set the kernel used.
+    /// Instruction set or variant the kernel used.
     pub isa: &'static str,
 }
 
-struct Writer<'a> {
-    dir: &'a OutDir,
-    prefix: &'a str,
-    word_bits: u32,
-    word_bytes: usize,
-    files: Vec<FileEntry>,
+/// Seconds spent per activity.
+#[derive(Default)]
+struct Clock {
+    gen_s: f64,
+    kernel_s: f64,
+    write_s: f64,
 }
 
-impl Writer<'_> {
-    fn rel(&self, name: &str) -> String {
-        format!("{}{name}", self.prefix)
-    }
-
-    fn io(&self, rel: &str) -> impl Fn(std::io::Error) -> Error + '_ {
-        let p = self.dir.tmp_path(rel);
-        move |e| Error::io(&p, e)
-    }
-
-    /// Writes `bytes` as a memory image in every format; `proto` carries the metadata.
-    fn images(
-        &mut self,
-        stem: &str,
-        formats: &[ImageFormat],
-        bytes: &[u8],
-        proto: &FileEntry,
-    ) -> Result<()> {
-        for &f in formats {
-            let rel = self.rel(&format!("{stem}.{}", f.ext()));
-            let mut out = self.dir.file(&rel)?;
-            let words = image::write_image(&mut out, f, self.word_bytes, bytes)
-                .map_err(|e| Error::input(format!("{rel}: {e}")))?;
-            let (fbytes, sha) = out.finish().map_err(self.io(&rel))?;
-            self.files.push(FileEntry {
-                path: rel,
-                format: f.ext().into(),
-                word_bits: Some(self.word_bits),
-                words: Some(words),
-                payload_bytes: Some(bytes.len() as u64),
-                padding_bytes: Some(words * self.word_bytes as u64 - bytes.len() as u64),
-                bytes: fbytes,
-                sha256: sha,
-                ..proto.clone()
-            });
-        }
-        Ok(())
-    }
-
-    /// Writes a typed `.npy` array.
-    fn typed(
-        &mut self,
-        name: &str,
-        descr: &str,
-        shape: &[u64],
-        data: &[u8],
-        proto: &FileEntry,
-    ) -> Result<()> {
-        let rel = self.rel(name);
-        let mut out = self.dir.file(&rel)?;
-        crate::npy::write_npy(&mut out, descr, shape, data).map_err(self.io(&rel))?;
-        let (fbytes, sha) = out.finish().map_err(self.io(&rel))?;
-        self.files.push(FileEntry {
-            path: rel,
-            format: "npy-typed".into(),
-            payload_bytes: Some(data.len() as u64),
-            bytes: fbytes,
-            sha256: sha,
-            ..proto.clone()
-        });
-        Ok(())
-    }
-
-    fn plain(&mut self, name: &str, role: Role, format: &str, text: &[u8]) -> Result<()> {
-        let rel = self.rel(name);
-        let (bytes, sha) = self.dir.write_all(&rel, text)?;
-        self.files.push(FileEntry {
-            path: rel,
-            role: Some(role),
-            format: format.into(),
-            bytes,
-            sha256: sha,
-            ..FileEntry::default()
-        });
-        Ok(())
-    }
-}
-
-/// One open per-channel hex image.
-struct ChannelImage {
-    rel: String,
-    out: OutFile,
-    end_word: u64,
+fn timed<T>(acc: &mut f64, f: impl FnOnce() -> T) -> T {
+    let t = Instant::now();
+    let r = f();
+    *acc += t.elapsed().as_secs_f64();
+    r
 }
 
 /// Runs `prep` into `dir` under `prefix` (`""` or `seed-N/`).
@@ -157,302 +83,317 @@ pub fn run_into(
     prefix: &str,
     progress: &mut dyn FnMut(usize, usize),
 ) -> Result<RunSummary> {
-    let spec = &prep.spec;
-    let word_bits = spec.layout.word_bits;
-    let word_bytes = prep.map.word_bytes();
-    let table_name = &spec.input.table;
-    let isa = Isa::detect();
-    let mut w = Writer {
-        dir,
-        prefix,
-        word_bits,
-        word_bytes: word_bytes as usize,
-        files: Vec::new(),
-    };
-    let mut channel_images: Vec<Option<ChannelImage>> =
-        (0..prep.map.channels()).map(|_| None).collect();
+    let mut w = RunFiles::new(dir, prefix, prep.spec.layout.word_bits, prep.map.channels());
+    let mut clock = Clock::default();
     let mut ledger = Ledger::new();
     let mut parts = Vec::new();
-    let (mut gen_s, mut kernel_s, mut write_s) = (0.0, 0.0, 0.0);
-    let types: Vec<_> = prep.schema.iter().map(|(_, t)| *t).collect();
-    let region = |name: &str| -> &Placed {
-        prep.map
-            .get(name)
-            .expect("every region was placed in prepare")
-    };
-    let elem_name = |c: usize| match prep.q.get(c).copied().flatten() {
-        Some(q) => format!("{}:{q}", types[c]),
-        None => types[c].to_string(),
-    };
-    for (p, plan) in prep.parts.iter().enumerate() {
-        let t0 = Instant::now();
-        let part: Table = prep.source.rows_of(plan.rows.clone());
-        gen_s += t0.elapsed().as_secs_f64();
+    let mut goldens = Vec::new();
+    for e in 0..prep.engines.len() {
+        let rows: Vec<Option<Table>> = timed(&mut clock.gen_s, || {
+            prep.tables
+                .iter()
+                .zip(&prep.engines[e].rows)
+                .map(|(t, r)| (t.share == Share::Partitioned).then(|| t.source.rows_of(r.clone())))
+                .collect()
+        });
+        timed(&mut clock.write_s, || write_partitions(&mut w, prep, e, &rows))?;
+        let mut kernel_s = 0.0;
+        let run = timed(&mut kernel_s, || run_engine(prep, e, &rows))?;
+        clock.kernel_s += kernel_s;
+        parts.push(PartSummary {
+            partition: e as u32,
+            channel: prep.engines[e].channel,
+            rows: run.rows_in,
+            records: run.rows_out,
+            kernel_s,
+        });
+        ledger.merge(&run.ledger);
+        goldens.push(run.outputs.iter().map(|o| o.name.clone()).collect());
+        timed(&mut clock.write_s, || write_goldens(&mut w, prep, e, &run.outputs))?;
+        progress(e + 1, prep.engines.len());
+    }
+    let listed = timed(&mut clock.write_s, || {
+        write_replicas(&mut w, prep)?;
+        let single = (prep.tables.len() == 1).then(|| prep.tables[0].name.as_str());
+        w.finish_channels(single)?;
+        write_records(&mut w, prep, &ledger, &goldens)
+    })?;
+    // The manifest and timing.json are not listed in the manifest.
+    let summary = summarize(prep, listed + 2, ledger, parts, &clock);
+    w.unlisted("timing.json", timing_json(&summary).as_bytes())?;
+    Ok(summary)
+}
 
-        // Inputs.
-        let t1 = Instant::now();
-        let base_entry = FileEntry {
-            role: Some(Role::Input),
-            table: Some(table_name.clone()),
-            partition: Some(p as u32),
-            channel: Some(plan.channel),
-            rows: Some([plan.rows.start, plan.rows.end]),
-            ..FileEntry::default()
-        };
-        let mut input_images: Vec<(String, Vec<u8>)> = Vec::new();
-        if prep.row_major {
-            let mut bytes = Vec::new();
-            for r in 0..part.rows() {
-                for c in &part.columns {
-                    table::column_bytes(c, r..r + 1, &mut bytes);
-                }
+/// Engine `e`'s kernel run on its partitions (`rows`, by input) and replicated tables.
+fn run_engine(prep: &Prepared, e: usize, rows: &[Option<Table>]) -> Result<EngineRun> {
+    let plan = &prep.engines[e];
+    let tables = prep
+        .tables
+        .iter()
+        .zip(rows)
+        .zip(&plan.rows)
+        .map(|((t, part), r)| {
+            let bases = |col: &str| prep.region(&prep.input_id(t, e, col)).base;
+            let rows = part.as_ref().or(t.whole.as_ref()).expect("rows or whole table");
+            EngineTable {
+                rows,
+                row_start: r.start,
+                channel: prep.region(&prep.input_id(t, e, &prep.image_columns(t)[0])).channel,
+                column_bases: if prep.row_major {
+                    Vec::new()
+                } else {
+                    t.schema.iter().map(|(c, _)| bases(c)).collect()
+                },
+                row_base: prep.row_major.then(|| bases(crate::job::prepare::ROWS)),
             }
-            input_images.push(("rows".into(), bytes));
-        } else {
+        })
+        .collect();
+    let ctx = EngineCtx {
+        engine: e as u32,
+        channel: plan.channel,
+        word_bytes: prep.map.word_bytes(),
+        tables,
+        region_bases: (0..plan.regions.len())
+            .map(|r| prep.region(&prep.output_id(e, r)).base)
+            .collect(),
+    };
+    prep.kernel
+        .run(&ctx)
+        .map_err(|m| Error::input(format!("engine {e}: {m}")))
+}
+
+/// The device bytes of each image of `part` (one per column, or one of row-major records).
+fn image_bytes(prep: &Prepared, part: &Table) -> Vec<Vec<u8>> {
+    if prep.row_major {
+        let mut bytes = Vec::new();
+        for r in 0..part.rows() {
             for c in &part.columns {
+                table::column_bytes(c, r..r + 1, &mut bytes);
+            }
+        }
+        vec![bytes]
+    } else {
+        part.columns
+            .iter()
+            .map(|c| {
                 let mut bytes = Vec::new();
                 table::column_bytes(c, 0..c.len(), &mut bytes);
-                input_images.push((c.name.clone(), bytes));
-            }
-        }
-        for (ci, (col, bytes)) in input_images.iter().enumerate() {
-            let name = input_region(table_name, p, col);
-            let reg = region(&name);
-            let proto = FileEntry {
-                column: Some(col.clone()),
-                base: Some(reg.base),
-                elem: Some(if prep.row_major {
-                    "record".into()
-                } else {
-                    elem_name(ci)
-                }),
-                ..base_entry.clone()
-            };
-            w.images(&format!("input/{name}"), &prep.formats, bytes, &proto)?;
-            if spec.output.channel_images {
-                let ch = plan.channel as usize;
-                if channel_images[ch].is_none() {
-                    let rel = w.rel(&format!("input/ch{ch}.hex"));
-                    channel_images[ch] = Some(ChannelImage {
-                        out: dir.file(&rel)?,
-                        rel,
-                        end_word: 0,
-                    });
-                }
-                let img = channel_images[ch].as_mut().expect("opened above");
-                let seg = Segment {
-                    word_addr: reg.word_addr(word_bytes),
-                    bytes,
-                    label: &name,
-                };
-                image::write_hex_segments(&mut img.out, word_bytes as usize, &[seg])
-                    .map_err(|e| Error::input(format!("{}: {e}", img.rel)))?;
-                img.end_word = img.end_word.max(reg.word_addr(word_bytes) + reg.words);
-            }
-        }
-        if spec.output.typed_npy {
-            for (ci, c) in part.columns.iter().enumerate() {
-                let mut data = Vec::new();
-                if c.ty.is_sub_byte() {
-                    if let table::ColumnData::U8(v) = &c.data {
-                        data.extend_from_slice(v);
-                    }
-                } else {
-                    table::column_bytes(c, 0..c.len(), &mut data);
-                }
-                let proto = FileEntry {
-                    column: Some(c.name.clone()),
-                    elem: Some(elem_name(ci)),
-                    ..base_entry.clone()
-                };
-                w.typed(
-                    &format!("arrays/{}.npy", input_region(table_name, p, &c.name)),
-                    c.ty.npy_descr(),
-                    &[c.len() as u64],
-                    &data,
-                    &proto,
-                )?;
-            }
-        }
-        write_s += t1.elapsed().as_secs_f64();
+                bytes
+            })
+            .collect()
+    }
+}
 
-        // Kernel.
-        let out_reg = region(&output_region(SCAN, p, "out"));
-        let count_reg = region(&output_region(SCAN, p, "count"));
-        let column_bases = if prep.row_major {
-            Vec::new()
-        } else {
-            part.columns
-                .iter()
-                .map(|c| region(&input_region(table_name, p, &c.name)).base)
-                .collect()
-        };
-        let io = EngineIo {
-            engine: p as u32,
-            channel: plan.channel,
-            word_bytes,
-            column_bases,
-            row_base: prep
-                .row_major
-                .then(|| region(&input_region(table_name, p, "rows")).base),
-            out_base: out_reg.base,
-            count_base: count_reg.base,
-        };
-        let t2 = Instant::now();
-        let res = scan::scan_partition(isa, &part, plan.rows.start, &prep.scan, &io);
-        let ks = t2.elapsed().as_secs_f64();
-        kernel_s += ks;
-        ledger.merge(&res.ledger);
+/// The element label of column `c` of `t` (`i16:Q3.12` when a format was given).
+fn elem_name(t: &InputTable, c: usize) -> String {
+    match t.q.get(c).copied().flatten() {
+        Some(q) => format!("{}:{q}", t.schema[c].1),
+        None => t.schema[c].1.to_string(),
+    }
+}
 
-        // Golden outputs.
-        let t3 = Instant::now();
-        let (elem, rec_bytes, records) = match &prep.scan.output {
-            ScanOutput::RowIds => (
-                if prep.scan.wide_ids { "u64" } else { "u32" }.to_string(),
-                prep.scan.record_bytes(&types),
-                res.count,
-            ),
-            ScanOutput::Bitmap => ("bits".to_string(), 0, part.rows() as u64),
-            ScanOutput::Project(_) => (
-                "record".to_string(),
-                prep.scan.record_bytes(&types),
-                res.count,
-            ),
-        };
-        let gold = FileEntry {
-            role: Some(Role::Golden),
-            kernel: Some(SCAN.into()),
-            table: Some(table_name.clone()),
-            partition: Some(p as u32),
+/// Writes engine `e`'s partition images, their channel segments and typed arrays.
+fn write_partitions(
+    w: &mut RunFiles,
+    prep: &Prepared,
+    e: usize,
+    rows: &[Option<Table>],
+) -> Result<()> {
+    let plan = &prep.engines[e];
+    for ((t, part), r) in prep.tables.iter().zip(rows).zip(&plan.rows) {
+        let Some(part) = part else { continue };
+        let proto = FileEntry {
+            role: Some(Role::Input),
+            table: Some(t.name.clone()),
+            partition: Some(e as u32),
             channel: Some(plan.channel),
-            rows: Some([plan.rows.start, plan.rows.end]),
+            rows: Some([r.start, r.end]),
             ..FileEntry::default()
         };
-        let out_name = output_region(SCAN, p, "out");
-        w.images(
-            &format!("golden/{out_name}"),
-            &prep.formats,
-            &res.out,
-            &FileEntry {
-                column: Some("out".into()),
-                base: Some(out_reg.base),
-                elem: Some(elem.clone()),
-                records: Some(records),
-                record_bytes: Some(rec_bytes),
-                ..gold.clone()
-            },
-        )?;
-        let count_name = output_region(SCAN, p, "count");
-        w.images(
-            &format!("golden/{count_name}"),
-            &prep.formats,
-            &res.count.to_le_bytes(),
-            &FileEntry {
-                column: Some("count".into()),
-                base: Some(count_reg.base),
-                elem: Some("u64".into()),
-                records: Some(1),
-                record_bytes: Some(8),
-                ..gold.clone()
-            },
-        )?;
-        if spec.output.typed_npy {
-            let proto = FileEntry {
-                column: Some("out".into()),
-                elem: Some(elem.clone()),
-                records: Some(records),
-                record_bytes: Some(rec_bytes),
-                ..gold.clone()
-            };
-            match &prep.scan.output {
-                ScanOutput::RowIds => {
-                    let d = if prep.scan.wide_ids { "<u8" } else { "<u4" };
-                    w.typed(
-                        &format!("arrays/{out_name}.npy"),
-                        d,
-                        &[res.count],
-                        &res.out,
-                        &proto,
-                    )?;
-                }
-                ScanOutput::Bitmap => {
-                    w.typed(
-                        &format!("arrays/{out_name}.npy"),
-                        "|u1",
-                        &[res.out.len() as u64],
-                        &res.out,
-                        &proto,
-                    )?;
-                }
-                ScanOutput::Project(cols) => {
-                    // One typed array per projected column, cut from the records.
-                    let widths: Vec<usize> =
-                        cols.iter().map(|&c| types[c].bits() as usize / 8).collect();
-                    let rec: usize = widths.iter().sum();
-                    let mut off = 0;
-                    for (&c, &wd) in cols.iter().zip(&widths) {
-                        let data: Vec<u8> = res
-                            .out
-                            .chunks_exact(rec.max(1))
-                            .flat_map(|r| r[off..off + wd].to_vec())
-                            .collect();
-                        off += wd;
-                        let name = format!("arrays/{out_name}.{}.npy", prep.schema[c].0);
-                        w.typed(
-                            &name,
-                            types[c].npy_descr(),
-                            &[res.count],
-                            &data,
-                            &FileEntry {
-                                column: Some(format!("out.{}", prep.schema[c].0)),
-                                elem: Some(types[c].to_string()),
-                                ..proto.clone()
-                            },
-                        )?;
-                    }
+        write_table_images(w, prep, t, e, part, &proto)?;
+        if prep.spec.output.typed_npy {
+            write_typed_columns(w, t, part, &format!("{}.p{e}", t.name), &proto)?;
+        }
+    }
+    Ok(())
+}
+
+/// The manifest entry of image `ci` (`col`) of table `t`.
+fn image_entry(prep: &Prepared, t: &InputTable, ci: usize, col: &str, proto: &FileEntry) -> FileEntry {
+    FileEntry {
+        column: Some(col.to_string()),
+        elem: Some(if prep.row_major {
+            "record".into()
+        } else {
+            elem_name(t, ci)
+        }),
+        ..proto.clone()
+    }
+}
+
+/// Writes the images of `part` (engine `e`'s partition of `t`) and their channel segments.
+fn write_table_images(
+    w: &mut RunFiles,
+    prep: &Prepared,
+    t: &InputTable,
+    e: usize,
+    part: &Table,
+    proto: &FileEntry,
+) -> Result<()> {
+    let cols = prep.image_columns(t);
+    for (ci, (col, bytes)) in cols.iter().zip(image_bytes(prep, part)).enumerate() {
+        let reg = prep.region(&prep.input_id(t, e, col));
+        let entry = FileEntry {
+            base: Some(reg.base),
+            ..image_entry(prep, t, ci, col, proto)
+        };
+        w.images(&format!("input/{}", reg.id), &prep.formats, &bytes, &entry)?;
+        if prep.spec.output.channel_images {
+            w.channel_segment(reg, &bytes)?;
+        }
+    }
+    Ok(())
+}
+
+/// Writes each column of `part` as a typed array `arrays/{stem}.{column}.npy`.
+fn write_typed_columns(
+    w: &mut RunFiles,
+    t: &InputTable,
+    part: &Table,
+    stem: &str,
+    proto: &FileEntry,
+) -> Result<()> {
+    for (ci, c) in part.columns.iter().enumerate() {
+        let mut data = Vec::new();
+        if c.ty.is_sub_byte() {
+            if let table::ColumnData::U8(v) = &c.data {
+                data.extend_from_slice(v);
+            }
+        } else {
+            table::column_bytes(c, 0..c.len(), &mut data);
+        }
+        let entry = FileEntry {
+            column: Some(c.name.clone()),
+            elem: Some(elem_name(t, ci)),
+            ..proto.clone()
+        };
+        let name = format!("arrays/{stem}.{}.npy", c.name);
+        w.typed(&name, c.ty.npy_descr(), &[c.len() as u64], &data, &entry)?;
+    }
+    Ok(())
+}
+
+/// Writes the replicated tables: one set of images `input/{table}.{column}.*` (the same
+/// bytes on every channel), one channel-image segment per copy, and their typed arrays.
+fn write_replicas(w: &mut RunFiles, prep: &Prepared) -> Result<()> {
+    for t in prep.tables.iter().filter(|t| t.share == Share::Replicated) {
+        let whole = t.whole.as_ref().expect("replicated tables are held whole");
+        let proto = FileEntry {
+            role: Some(Role::Input),
+            table: Some(t.name.clone()),
+            rows: Some([0, whole.rows() as u64]),
+            ..FileEntry::default()
+        };
+        let cols = prep.image_columns(t);
+        let images = image_bytes(prep, whole);
+        for (ci, (col, bytes)) in cols.iter().zip(&images).enumerate() {
+            let entry = image_entry(prep, t, ci, col, &proto);
+            w.images(&format!("input/{}.{col}", t.name), &prep.formats, bytes, &entry)?;
+        }
+        if prep.spec.output.channel_images {
+            for ch in prep.engine_channels() {
+                let e = prep.engines.iter().position(|p| p.channel == ch).expect("an engine");
+                for (col, bytes) in cols.iter().zip(&images) {
+                    w.channel_segment(prep.region(&prep.input_id(t, e, col)), bytes)?;
                 }
             }
         }
-        write_s += t3.elapsed().as_secs_f64();
-        parts.push(PartSummary {
-            partition: p as u32,
-            channel: plan.channel,
-            rows: part.rows() as u64,
-            matches: res.count,
-            kernel_s: ks,
-        });
-        progress(p + 1, prep.parts.len());
-    }
-
-    let t4 = Instant::now();
-    for (ch, img) in channel_images.into_iter().enumerate() {
-        if let Some(img) = img {
-            let (bytes, sha) = img.out.finish().map_err(w.io(&img.rel))?;
-            w.files.push(FileEntry {
-                path: img.rel,
-                role: Some(Role::Input),
-                format: "hex".into(),
-                table: Some(table_name.clone()),
-                channel: Some(ch as u32),
-                base: Some(0),
-                word_bits: Some(word_bits),
-                words: Some(img.end_word),
-                bytes,
-                sha256: sha,
-                ..FileEntry::default()
-            });
+        if prep.spec.output.typed_npy {
+            write_typed_columns(w, t, whole, &t.name, &proto)?;
         }
     }
-    let ledger_json =
-        serde_json::to_string_pretty(&ledger.to_json(word_bits)).expect("json") + "\n";
-    w.plain("ledger.json", Role::Ledger, "json", ledger_json.as_bytes())?;
-    w.plain(
-        "ledger.csv",
-        Role::Ledger,
-        "csv",
-        ledger.to_csv().as_bytes(),
-    )?;
-    let map = crate::memmap::MapInfo { prep };
+    Ok(())
+}
+
+/// Writes engine `e`'s golden outputs: every image, then every typed array.
+fn write_goldens(w: &mut RunFiles, prep: &Prepared, e: usize, outputs: &[Golden]) -> Result<()> {
+    let plan = &prep.engines[e];
+    let first = prep.tables.iter().position(|t| t.share == Share::Partitioned);
+    let gold = FileEntry {
+        role: Some(Role::Golden),
+        kernel: Some(prep.kernel.name().into()),
+        table: first.map(|i| prep.tables[i].name.clone()),
+        partition: Some(e as u32),
+        channel: Some(plan.channel),
+        rows: first.map(|i| [plan.rows[i].start, plan.rows[i].end]),
+        ..FileEntry::default()
+    };
+    let entry = |o: &Golden| FileEntry {
+        column: Some(o.name.clone()),
+        elem: Some(o.elem.clone()),
+        records: Some(o.records),
+        record_bytes: Some(o.record_bytes),
+        ..gold.clone()
+    };
+    let stem = |o: &Golden| format!("{}.p{e}.{}", prep.kernel.name(), o.name);
+    for o in outputs {
+        let proto = FileEntry {
+            base: o.region.map(|r| prep.region(&prep.output_id(e, r)).base),
+            ..entry(o)
+        };
+        w.images(&format!("golden/{}", stem(o)), &prep.formats, &o.bytes, &proto)?;
+    }
+    if !prep.spec.output.typed_npy {
+        return Ok(());
+    }
+    for o in outputs {
+        let name = stem(o);
+        match &o.arrays {
+            Arrays::None => {}
+            Arrays::Whole { descr, len } => {
+                w.typed(&format!("arrays/{name}.npy"), descr, &[*len], &o.bytes, &entry(o))?;
+            }
+            Arrays::PerField => write_field_arrays(w, o, &name, &entry(o))?,
+        }
+    }
+    Ok(())
+}
+
+/// One typed array per record field, cut from the packed records.
+fn write_field_arrays(w: &mut RunFiles, o: &Golden, name: &str, proto: &FileEntry) -> Result<()> {
+    let widths: Vec<usize> = o.fields.iter().map(|f| f.ty.bits() as usize / 8).collect();
+    let rec: usize = widths.iter().sum();
+    let mut off = 0;
+    for (f, &wd) in o.fields.iter().zip(&widths) {
+        let data: Vec<u8> = o
+            .bytes
+            .chunks_exact(rec.max(1))
+            .flat_map(|r| r[off..off + wd].iter().copied())
+            .collect();
+        off += wd;
+        let entry = FileEntry {
+            column: Some(format!("{}.{}", o.name, f.name)),
+            elem: Some(f.ty.to_string()),
+            ..proto.clone()
+        };
+        let path = format!("arrays/{name}.{}.npy", f.name);
+        w.typed(&path, f.ty.npy_descr(), &[o.records], &data, &entry)?;
+    }
+    Ok(())
+}
+
+/// Writes the ledger, the memory map and the manifest; returns the files it lists.
+fn write_records(
+    w: &mut RunFiles,
+    prep: &Prepared,
+    ledger: &Ledger,
+    goldens: &[Vec<String>],
+) -> Result<usize> {
+    let word_bits = prep.spec.layout.word_bits;
+    let json = serde_json::to_string_pretty(&ledger.to_json(word_bits)).expect("json") + "\n";
+    w.plain("ledger.json", Role::Ledger, "json", json.as_bytes())?;
+    w.plain("ledger.csv", Role::Ledger, "csv", ledger.to_csv().as_bytes())?;
+    let map = crate::memmap::MapInfo { prep, goldens };
     w.plain("memory_map.vh", Role::Map, "vh", map.verilog().as_bytes())?;
     w.plain("memory_map.json", Role::Map, "json", map.json().as_bytes())?;
     let manifest = Manifest {
@@ -462,56 +403,58 @@ pub fn run_into(
         word_bits,
         files: std::mem::take(&mut w.files),
     };
-    let files = manifest.files.len() + 2;
-    let rel = w.rel(MANIFEST_FILE);
-    dir.write_all(&rel, manifest.to_json().as_bytes())?;
-    write_s += t4.elapsed().as_secs_f64();
-
-    let rows = prep.source.rows();
-    let matches = parts.iter().map(|p| p.matches).sum();
-    let input_bytes = ledger
-        .sum(|k| k.direction == crate::ledger::Direction::Read)
-        .bytes;
-    let summary = RunSummary {
-        files,
-        rows,
-        input_bytes,
-        matches,
-        requested_selectivity: requested_selectivity(prep),
-        ledger,
-        parts,
-        gen_s,
-        kernel_s,
-        write_s,
-        isa: isa.name(),
-    };
-    let timing = serde_json::json!({
-        "threads": rayon::current_num_threads(),
-        "isa": summary.isa,
-        "generate_s": gen_s,
-        "kernel_s": kernel_s,
-        "write_s": write_s,
-        "kernel_gbps": if kernel_s > 0.0 { input_bytes as f64 / kernel_s / 1e9 } else { 0.0 },
-        "partitions": summary.parts,
-    });
-    let rel = w.rel("timing.json");
-    let mut f = dir.file(&rel)?;
-    writeln!(
-        f,
-        "{}",
-        serde_json::to_string_pretty(&timing).expect("json")
-    )
-    .map_err(w.io(&rel))?;
-    f.finish().map_err(w.io(&rel))?;
-    Ok(summary)
+    w.unlisted(MANIFEST_FILE, manifest.to_json().as_bytes())?;
+    Ok(manifest.files.len())
 }
 
-fn requested_selectivity(prep: &Prepared) -> Option<f64> {
-    prep.spec.input.columns.iter().find_map(|c| {
-        if c.dist.as_deref() == Some("select") {
-            c.selectivity
-        } else {
-            None
+fn summarize(
+    prep: &Prepared,
+    files: usize,
+    ledger: Ledger,
+    parts: Vec<PartSummary>,
+    clock: &Clock,
+) -> RunSummary {
+    let runs: Vec<(u64, u64)> = parts.iter().map(|p| (p.rows, p.records)).collect();
+    RunSummary {
+        files,
+        input_bytes: ledger.sum(|k| k.direction == Direction::Read).bytes,
+        requested: requested_selectivity(prep),
+        kernel_lines: prep.kernel.summary(&runs),
+        ledger,
+        parts,
+        gen_s: clock.gen_s,
+        kernel_s: clock.kernel_s,
+        write_s: clock.write_s,
+        isa: prep.kernel.host_variant(),
+    }
+}
+
+fn timing_json(s: &RunSummary) -> String {
+    let gbps = if s.kernel_s > 0.0 {
+        s.input_bytes as f64 / s.kernel_s / 1e9
+    } else {
+        0.0
+    };
+    let v = serde_json::json!({
+        "threads": rayon::current_num_threads(),
+        "isa": s.isa,
+        "generate_s": s.gen_s,
+        "kernel_s": s.kernel_s,
+        "write_s": s.write_s,
+        "kernel_gbps": gbps,
+        "partitions": s.parts,
+    });
+    serde_json::to_string_pretty(&v).expect("json") + "\n"
+}
+
+fn requested_selectivity(prep: &Prepared) -> Vec<(String, f64)> {
+    let mut out = Vec::new();
+    for (name, t) in prep.spec.table_specs().unwrap_or_default() {
+        for c in &t.columns {
+            if let (Some("select"), Some(s)) = (c.dist.as_deref(), c.selectivity) {
+                out.push((format!("{name}.{}", c.name), s));
+            }
         }
-    })
+    }
+    out
 }

@@ -2,11 +2,13 @@
 //! and which formats to write. Every table rejects unknown keys, so a typo is an error.
 //! After loading, defaults are filled in; the resolved job is what the manifest records.
 
+use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
 use serde::{Deserialize, Serialize};
 
 use crate::error::{Error, Result};
+use crate::kernels::KernelConfig;
 use crate::table::ElemType;
 
 /// A whole job.
@@ -16,13 +18,17 @@ pub struct JobSpec {
     /// Job name (used in headers of generated files).
     #[serde(default = "default_name")]
     pub name: String,
-    /// The input table.
-    pub input: InputSpec,
+    /// The input table of a one-table job (`[input]`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub input: Option<InputSpec>,
+    /// The input tables of a several-table job (`[tables.NAME]`), by name.
+    #[serde(default, skip_serializing_if = "BTreeMap::is_empty")]
+    pub tables: BTreeMap<String, InputSpec>,
     /// Layout and placement.
     #[serde(default)]
     pub layout: LayoutSpec,
     /// The kernel and its parameters.
-    pub kernel: KernelSpec,
+    pub kernel: KernelConfig,
     /// What to write.
     #[serde(default)]
     pub output: OutputSpec,
@@ -32,13 +38,13 @@ fn default_name() -> String {
     "job".into()
 }
 
-/// The input table: a generator, a CSV file, or one `.npy`/`.bin` file per column.
+/// An input table: a generator, a CSV file, or one `.npy`/`.bin` file per column.
 #[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
 #[serde(deny_unknown_fields)]
 pub struct InputSpec {
-    /// Table name.
-    #[serde(default = "default_table")]
-    pub table: String,
+    /// Table name of `[input]` (default `t`); a `[tables.NAME]` section is named by NAME.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub table: Option<String>,
     /// Rows to generate.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub rows: Option<u64>,
@@ -59,9 +65,8 @@ pub struct InputSpec {
     pub columns: Vec<ColumnSpec>,
 }
 
-fn default_table() -> String {
-    "t".into()
-}
+/// The table name of a one-table job that gives none.
+pub const DEFAULT_TABLE: &str = "t";
 
 fn default_seed() -> u64 {
     1
@@ -171,39 +176,6 @@ pub enum PlacementSpec {
     List(Vec<u32>),
 }
 
-/// The kernel, selected by `name`.
-#[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
-#[serde(tag = "name", rename_all = "lowercase")]
-pub enum KernelSpec {
-    /// Predicate scan.
-    Scan(ScanSpec),
-}
-
-/// Scan parameters.
-#[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
-#[serde(deny_unknown_fields)]
-pub struct ScanSpec {
-    /// The predicate text.
-    pub predicate: String,
-    /// `row_ids`, `bitmap` or `project`.
-    #[serde(default = "default_scan_output")]
-    pub output: String,
-    /// Columns to project (output = project).
-    #[serde(default, skip_serializing_if = "Vec::is_empty")]
-    pub project: Vec<String>,
-    /// `global` (from the table's first row) or `local` (from the partition's).
-    #[serde(default = "default_row_ids")]
-    pub row_ids: String,
-}
-
-fn default_scan_output() -> String {
-    "row_ids".into()
-}
-
-fn default_row_ids() -> String {
-    "global".into()
-}
-
 /// Output files.
 #[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
 #[serde(deny_unknown_fields, default)]
@@ -244,6 +216,47 @@ impl JobSpec {
         })
     }
 
+    /// Every input table as (name, spec), with `[input]` named by its `table` key.
+    pub fn table_specs(&self) -> Result<Vec<(String, &InputSpec)>> {
+        match (&self.input, self.tables.is_empty()) {
+            (Some(i), true) => Ok(vec![(
+                i.table.clone().unwrap_or_else(|| DEFAULT_TABLE.into()),
+                i,
+            )]),
+            (None, false) => self
+                .tables
+                .iter()
+                .map(|(name, t)| match &t.table {
+                    Some(other) if other != name => Err(Error::input(format!(
+                        "tables.{name}: `table = \"{other}\"` differs from the section name; leave it out"
+                    ))),
+                    _ => Ok((name.clone(), t)),
+                })
+                .collect(),
+            (Some(_), false) => Err(Error::input(
+                "the job has both [input] and [tables.*]; use [input] for one table, [tables.NAME] for several",
+            )),
+            (None, true) => Err(Error::input(
+                "the job has no input: give an [input] table or [tables.NAME] tables",
+            )),
+        }
+    }
+
+    /// Mutable specs of every input table, in [`JobSpec::table_specs`] order.
+    pub fn table_specs_mut(&mut self) -> Vec<&mut InputSpec> {
+        match &mut self.input {
+            Some(i) => vec![i],
+            None => self.tables.values_mut().collect(),
+        }
+    }
+
+    /// Sets the generator seed of every table (`--seeds`).
+    pub fn set_seed(&mut self, seed: u64) {
+        for t in self.table_specs_mut() {
+            t.seed = seed;
+        }
+    }
+
     /// Reads and parses a job file.
     pub fn load(path: &Path) -> Result<JobSpec> {
         let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
@@ -262,8 +275,23 @@ mod tests {
         let j = JobSpec::from_toml(MIN, Path::new("j.toml")).unwrap();
         assert_eq!(j.layout.word_bits, 512);
         assert_eq!(j.output.formats, vec!["hex", "npy"]);
-        let KernelSpec::Scan(s) = &j.kernel;
+        let KernelConfig::Scan(s) = &j.kernel;
         assert_eq!(s.output, "row_ids");
+        assert_eq!(j.table_specs().unwrap()[0].0, "t");
+    }
+
+    #[test]
+    fn several_tables_are_named_by_their_sections() {
+        let text = MIN.replace("[input]", "[tables.b]").replace(
+            "[[input.columns]]",
+            "[[tables.b.columns]]",
+        ) + "[tables.a]\nrows = 1\n";
+        let j = JobSpec::from_toml(&text, Path::new("j.toml")).unwrap();
+        let names: Vec<String> = j.table_specs().unwrap().into_iter().map(|t| t.0).collect();
+        assert_eq!(names, ["a", "b"]);
+        let both = format!("{MIN}[tables.a]\nrows = 1\n");
+        let j = JobSpec::from_toml(&both, Path::new("j.toml")).unwrap();
+        assert!(j.table_specs().unwrap_err().to_string().contains("both [input] and [tables.*]"));
     }
 
     #[test]

@@ -1,8 +1,17 @@
 //! The kernels: they compute results and count their traffic into a ledger. They know
-//! tables, layout and the ledger, never file formats or the terminal.
+//! tables, layout and the ledger, never file formats or the terminal. Each kernel plugs
+//! into the runner through the seam in [`seam`]; [`KernelConfig`] is the one list of them.
 
 pub mod predicate;
 pub mod scan;
+pub mod seam;
+
+use std::sync::Arc;
+
+use serde::{Deserialize, Serialize};
+
+use crate::error::Result;
+use crate::kernels::seam::{Kernel, TableSchema};
 
 use crate::kernels::predicate::Value;
 use crate::table::{Column, ColumnData};
@@ -20,5 +29,22 @@ pub fn value_at(col: &Column, r: usize) -> Value {
         ColumnData::I64(v) => Value::I(v[r]),
         ColumnData::F32(v) => Value::F(f64::from(v[r])),
         ColumnData::F64(v) => Value::F(v[r]),
+    }
+}
+
+/// The `[kernel]` table of a job, selected by its `name` key: the registry of kernels.
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
+#[serde(tag = "name", rename_all = "lowercase")]
+pub enum KernelConfig {
+    /// Predicate scan.
+    Scan(scan::ScanConfig),
+}
+
+impl KernelConfig {
+    /// Binds the configuration against the job's input tables.
+    pub fn bind(&self, tables: &[TableSchema]) -> Result<Arc<dyn Kernel>> {
+        Ok(match self {
+            KernelConfig::Scan(c) => Arc::new(c.bind(tables)?),
+        })
     }
 }

@@ -17,8 +17,10 @@
 #[cfg(target_arch = "x86_64")]
 mod avx512;
 mod mask;
+mod plan;
 
 pub use mask::{for_each_match, Isa};
+pub use plan::{ScanConfig, ScanKernel};
 
 use rayon::prelude::*;
 
