@@ -63,7 +63,11 @@ impl MapInfo<'_> {
             p.spec.layout.word_bits
         );
         let _ = writeln!(s, "localparam integer WEIR_WORD_BYTES = {wb};");
-        let _ = writeln!(s, "localparam integer WEIR_PARTITIONS = {};", p.engines.len());
+        let _ = writeln!(
+            s,
+            "localparam integer WEIR_PARTITIONS = {};",
+            p.engines.len()
+        );
         let _ = writeln!(s, "localparam integer WEIR_CHANNELS = {};", map.channels());
         for ch in 0..map.channels() {
             let end = map
@@ -137,7 +141,11 @@ impl MapInfo<'_> {
                 let _ = writeln!(s, "localparam integer P{e}_CHANNEL = {};", plan.channel);
             }
             if t.share == Share::Partitioned {
-                let _ = writeln!(s, "localparam [63:0] P{e}_{tag}ROW_START = {};", dec64(r.start));
+                let _ = writeln!(
+                    s,
+                    "localparam [63:0] P{e}_{tag}ROW_START = {};",
+                    dec64(r.start)
+                );
                 let _ = writeln!(
                     s,
                     "localparam [63:0] P{e}_{tag}ROWS = {};",
@@ -157,7 +165,11 @@ impl MapInfo<'_> {
                         "localparam P{e}_IN_{up}_HEX = {{`WEIR_DIR, \"input/{file}.hex\"}};"
                     );
                 }
-                let _ = writeln!(s, "localparam [63:0] P{e}_IN_{up}_BASE = {};", hex64(reg.base));
+                let _ = writeln!(
+                    s,
+                    "localparam [63:0] P{e}_IN_{up}_BASE = {};",
+                    hex64(reg.base)
+                );
                 let _ = writeln!(
                     s,
                     "localparam [63:0] P{e}_IN_{up}_WORDS = {};",

@@ -39,7 +39,8 @@ fn run_writes_a_complete_directory_that_inspect_verifies() {
     let o = weir(&["run", TB_JOB, "--out", out.to_str().unwrap()]);
     assert_eq!(o.code, 0, "{}", o.stderr);
     assert!(
-        o.stdout.contains("selectivity: requested 5.0000%"),
+        o.stdout
+            .contains("input: column readings.v: requested selectivity 5.0000%"),
         "{}",
         o.stdout
     );
@@ -131,9 +132,25 @@ fn refuses_a_non_empty_output_directory_without_force() {
         std::fs::read_to_string(out.join("keep.txt")).unwrap(),
         "precious"
     );
+    // --force replaces only weir's own output: a directory without a manifest stays.
     let o = weir(&["run", TB_JOB, "--out", out.to_str().unwrap(), "--force"]);
-    assert_eq!(o.code, 0, "{}", o.stderr);
-    assert!(!out.join("keep.txt").exists() && out.join("manifest.json").exists());
+    assert_eq!(o.code, 2, "{}", o.stdout);
+    assert!(o.stderr.contains("no weir manifest"), "{}", o.stderr);
+    assert!(out.join("keep.txt").exists());
+    let own = t.join("own");
+    for force in [false, true] {
+        let mut args = vec!["run", TB_JOB, "--out", own.to_str().unwrap()];
+        if force {
+            args.push("--force");
+        }
+        let o = weir(&args);
+        assert_eq!(o.code, 0, "{}", o.stderr);
+    }
+    let o = weir(&["run", TB_JOB, "--out", own.to_str().unwrap()]);
+    assert_eq!(
+        o.code, 2,
+        "an earlier output is not replaced without --force"
+    );
 }
 
 #[test]

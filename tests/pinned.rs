@@ -25,8 +25,12 @@ fn check_pinned(name: &str, out: &Path) {
         std::fs::write(&pin, &got).expect("write pin");
         return;
     }
-    let want = std::fs::read_to_string(&pin)
-        .unwrap_or_else(|e| panic!("{}: {e} (run with WEIR_BLESS=1 to create it)", pin.display()));
+    let want = std::fs::read_to_string(&pin).unwrap_or_else(|e| {
+        panic!(
+            "{}: {e} (run with WEIR_BLESS=1 to create it)",
+            pin.display()
+        )
+    });
     if got != want {
         let diff: Vec<String> = want
             .lines()
@@ -55,12 +59,7 @@ fn example_jobs_write_pinned_bytes() {
         let name = job.file_stem().unwrap().to_string_lossy().to_string();
         let t = TempDir::new(&format!("pinned-{name}"));
         let out = t.join("out");
-        let o = weir(&[
-            "run",
-            job.to_str().unwrap(),
-            "--out",
-            out.to_str().unwrap(),
-        ]);
+        let o = weir(&["run", job.to_str().unwrap(), "--out", out.to_str().unwrap()]);
         assert_eq!(o.code, 0, "{name}: {}", o.stderr);
         check_pinned(&name, &out);
     }

@@ -24,14 +24,29 @@ fn execute(
     out: &Path,
     force: bool,
     seeds: Option<std::ops::Range<u64>>,
+    protect: &[&Path],
 ) -> Result<()> {
-    let pb = super::progress(0, "partitions");
-    let results = job::run(spec, job_dir, out, force, seeds, &mut |done, total| {
-        pb.set_length(total as u64);
-        pb.set_position(done as u64);
-    })?;
+    let pb = super::progress(0, "engines");
+    let done = job::run(
+        spec,
+        job_dir,
+        out,
+        force,
+        seeds,
+        protect,
+        &mut |done, total| {
+            pb.set_length(total as u64);
+            pb.set_position(done as u64);
+        },
+    )?;
     pb.finish_and_clear();
-    for (seed, s) in &results {
+    for d in &done.stale_removed {
+        say!(
+            "removed {}, left by an interrupted earlier run",
+            d.display()
+        );
+    }
+    for (seed, s) in &done.runs {
         let dir = match seed {
             Some(n) => out.join(format!("seed-{n}")),
             None => out.to_path_buf(),
@@ -45,7 +60,10 @@ fn execute(
 fn print_summary(dir: &Path, s: &RunSummary) {
     say!("wrote {} files to {}", s.files, dir.display());
     for (column, r) in &s.requested {
-        say!("input: column {column}: requested selectivity {:.4}%", r * 100.0);
+        say!(
+            "input: column {column}: requested selectivity {:.4}%",
+            r * 100.0
+        );
     }
     for line in &s.kernel_lines {
         say!("{line}");
@@ -83,7 +101,7 @@ pub fn run(a: RunArgs) -> Result<Outcome> {
     let spec = JobSpec::load(&a.job)?;
     let seeds = a.seeds.as_deref().map(parse_seeds).transpose()?;
     let job_dir = a.job.parent().unwrap_or(Path::new("."));
-    execute(&spec, job_dir, &a.out, a.force, seeds)?;
+    execute(&spec, job_dir, &a.out, a.force, seeds, &[a.job.as_path()])?;
     Ok(Outcome::Ok)
 }
 
@@ -91,6 +109,6 @@ pub fn run(a: RunArgs) -> Result<Outcome> {
 pub fn demo(a: DemoArgs) -> Result<Outcome> {
     let spec = JobSpec::from_toml(DEMO_JOB, Path::new("data/jobs/demo.toml"))?;
     say!("weir demo: {}", spec.name);
-    execute(&spec, Path::new("."), &a.out, a.force, None)?;
+    execute(&spec, Path::new("."), &a.out, a.force, None, &[])?;
     Ok(Outcome::Ok)
 }

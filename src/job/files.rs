@@ -45,7 +45,7 @@ impl<'a> RunFiles<'a> {
     }
 
     fn io(&self, rel: &str) -> impl Fn(std::io::Error) -> Error + '_ {
-        let p = self.dir.tmp_path(rel);
+        let p = self.dir.shown_path(rel);
         move |e| Error::io(&p, e)
     }
 

@@ -21,16 +21,26 @@ use std::path::Path;
 
 use crate::error::{Error, Result};
 
+/// What [`run`] did.
+pub struct Runs {
+    /// One summary per seed (`None` without `--seeds`).
+    pub runs: Vec<(Option<u64>, RunSummary)>,
+    /// Temporary directories of dead earlier runs into the same target, removed.
+    pub stale_removed: Vec<std::path::PathBuf>,
+}
+
 /// Runs `spec` into `out` (or, with `seeds`, once per seed into `out/seed-N/`); the
-/// directory appears only when every run succeeded.
+/// directory appears only when every run succeeded. Files in `protect` (the job file)
+/// must not lie inside `out`.
 pub fn run(
     spec: &JobSpec,
     job_dir: &Path,
     out: &Path,
     force: bool,
     seeds: Option<std::ops::Range<u64>>,
+    protect: &[&Path],
     progress: &mut dyn FnMut(usize, usize),
-) -> Result<Vec<(Option<u64>, RunSummary)>> {
+) -> Result<Runs> {
     let plans: Vec<(Option<u64>, Prepared)> = match seeds {
         None => vec![(None, prepare(spec, job_dir)?)],
         Some(r) => {
@@ -48,12 +58,16 @@ pub fn run(
             .collect::<Result<_>>()?
         }
     };
-    let dir = OutDir::create(out, force)?;
+    let dir = OutDir::create(out, force, protect)?;
+    let stale_removed = dir.stale_removed().to_vec();
     let mut results = Vec::new();
     for (seed, prep) in &plans {
         let prefix = seed.map(|s| format!("seed-{s}/")).unwrap_or_default();
         results.push((*seed, run_into(prep, &dir, &prefix, progress)?));
     }
     dir.commit()?;
-    Ok(results)
+    Ok(Runs {
+        runs: results,
+        stale_removed,
+    })
 }

@@ -73,31 +73,117 @@ pub struct OutDir {
     target: PathBuf,
     tmp: PathBuf,
     committed: bool,
+    stale: Vec<PathBuf>,
 }
 
-/// Refuses a target that exists and is not empty unless `force`.
-pub fn check_target(target: &Path, force: bool) -> Result<()> {
-    if force {
-        return Ok(());
+/// The marker in the names of temporary directories: `.{name}.weir-partial-{pid}`.
+const PARTIAL: &str = ".weir-partial-";
+
+/// Temporary directories of this process not yet committed, for the signal handler.
+static LIVE: std::sync::Mutex<Vec<PathBuf>> = std::sync::Mutex::new(Vec::new());
+
+/// Removes every temporary directory this process has not committed (called on SIGINT
+/// or SIGTERM before exiting); returns how many were removed.
+pub fn discard_partials() -> usize {
+    let live = match LIVE.lock() {
+        Ok(mut l) => std::mem::take(&mut *l),
+        Err(p) => std::mem::take(&mut *p.into_inner()),
+    };
+    // Files may still be appearing while a worker writes; a few passes catch them.
+    live.iter()
+        .filter(|d| (0..5).any(|_| std::fs::remove_dir_all(d).is_ok() || !d.exists()))
+        .count()
+}
+
+fn unregister(tmp: &Path) {
+    if let Ok(mut l) = LIVE.lock() {
+        l.retain(|p| p != tmp);
+    }
+}
+
+/// True when `dir` holds a manifest written by weir.
+fn is_weir_output(dir: &Path) -> bool {
+    crate::manifest::Manifest::load(dir).is_ok()
+}
+
+/// Refuses a target that is not a directory, or that exists, is not empty and is not
+/// weir's own output; `force` is needed to replace weir's own output. Nothing in
+/// `protect` (the job file) may lie inside the target.
+pub fn check_target(target: &Path, force: bool, protect: &[&Path]) -> Result<()> {
+    if target.exists() && !target.is_dir() {
+        return Err(Error::exists(format!(
+            "{} exists and is not a directory; --out names a directory",
+            target.display()
+        )));
+    }
+    if let Ok(t) = target.canonicalize() {
+        for p in protect {
+            if p.canonicalize().is_ok_and(|p| p.starts_with(&t)) {
+                return Err(Error::exists(format!(
+                    "{} lies inside --out {}; a run never replaces its own job file",
+                    p.display(),
+                    target.display()
+                )));
+            }
+        }
     }
     let busy = match std::fs::read_dir(target) {
         Ok(mut it) => it.next().is_some(),
         Err(e) if e.kind() == std::io::ErrorKind::NotFound => false,
-        Err(_) => target.exists(),
+        Err(e) => return Err(Error::io(target, e)),
     };
-    if busy {
+    if !busy {
+        return Ok(());
+    }
+    if !is_weir_output(target) {
         return Err(Error::exists(format!(
-            "{} exists and is not empty; choose another --out or add --force to replace it",
+            "{} is not empty and holds no weir manifest; --force replaces only weir's own output",
+            target.display()
+        )));
+    }
+    if !force {
+        return Err(Error::exists(format!(
+            "{} holds an earlier weir output; choose another --out or add --force to replace it",
             target.display()
         )));
     }
     Ok(())
 }
 
+/// True when process `pid` is running (Linux `/proc`; elsewhere assumed running, so a
+/// live run's directory is never removed).
+fn alive(pid: u32) -> bool {
+    let proc = Path::new("/proc");
+    !proc.is_dir() || proc.join(pid.to_string()).exists()
+}
+
+/// Removes temporary directories of earlier runs into `parent/name` whose process is gone.
+fn remove_stale(parent: &Path, name: &str) -> Vec<PathBuf> {
+    let prefix = format!(".{name}{PARTIAL}");
+    let Ok(entries) = std::fs::read_dir(parent) else {
+        return Vec::new();
+    };
+    let mut removed = Vec::new();
+    for e in entries.flatten() {
+        let file = e.file_name().to_string_lossy().to_string();
+        let Some(rest) = file.strip_prefix(&prefix) else {
+            continue;
+        };
+        let pid = rest.split('.').next().and_then(|p| p.parse::<u32>().ok());
+        if pid.is_some_and(|p| p != std::process::id() && !alive(p))
+            && std::fs::remove_dir_all(e.path()).is_ok()
+        {
+            removed.push(e.path());
+        }
+    }
+    removed
+}
+
 impl OutDir {
-    /// Starts a directory that will become `target`.
-    pub fn create(target: &Path, force: bool) -> Result<OutDir> {
-        check_target(target, force)?;
+    /// Starts a directory that will become `target`; `protect` lists files (the job file)
+    /// that must not lie inside it.
+    pub fn create(target: &Path, force: bool, protect: &[&Path]) -> Result<OutDir> {
+        check_target(target, force, protect)?;
         let name = target
             .file_name()
             .ok_or_else(|| Error::input(format!("{}: not a directory name", target.display())))?
@@ -108,25 +194,35 @@ impl OutDir {
             _ => PathBuf::from("."),
         };
         std::fs::create_dir_all(&parent).map_err(|e| Error::io(&parent, e))?;
-        let tmp = parent.join(format!(".{name}.weir-partial-{}", std::process::id()));
+        let stale = remove_stale(&parent, &name);
+        let tmp = parent.join(format!(".{name}{PARTIAL}{}", std::process::id()));
         if tmp.exists() {
-            std::fs::remove_dir_all(&tmp).map_err(|e| Error::io(&tmp, e))?;
+            std::fs::remove_dir_all(&tmp).map_err(|e| Error::io(target, e))?;
         }
-        std::fs::create_dir_all(&tmp).map_err(|e| Error::io(&tmp, e))?;
+        std::fs::create_dir_all(&tmp).map_err(|e| Error::io(target, e))?;
+        if let Ok(mut l) = LIVE.lock() {
+            l.push(tmp.clone());
+        }
         Ok(OutDir {
             target: target.to_path_buf(),
             tmp,
             committed: false,
+            stale,
         })
+    }
+
+    /// Temporary directories of dead earlier runs that [`OutDir::create`] removed.
+    pub fn stale_removed(&self) -> &[PathBuf] {
+        &self.stale
     }
 
     /// Opens `rel` (a path relative to the directory, subfolders created) for writing.
     pub fn file(&self, rel: &str) -> Result<OutFile> {
         let p = self.tmp.join(rel);
         if let Some(dir) = p.parent() {
-            std::fs::create_dir_all(dir).map_err(|e| Error::io(dir, e))?;
+            std::fs::create_dir_all(dir).map_err(|e| Error::io(&self.shown_path(rel), e))?;
         }
-        let f = File::create(&p).map_err(|e| Error::io(&p, e))?;
+        let f = File::create(&p).map_err(|e| Error::io(&self.shown_path(rel), e))?;
         Ok(HashWriter::new(BufWriter::with_capacity(1 << 20, f)))
     }
 
@@ -134,13 +230,14 @@ impl OutDir {
     pub fn write_all(&self, rel: &str, data: &[u8]) -> Result<(u64, String)> {
         let mut f = self.file(rel)?;
         f.write_all(data)
-            .map_err(|e| Error::io(&self.tmp.join(rel), e))?;
-        f.finish().map_err(|e| Error::io(&self.tmp.join(rel), e))
+            .map_err(|e| Error::io(&self.shown_path(rel), e))?;
+        f.finish().map_err(|e| Error::io(&self.shown_path(rel), e))
     }
 
-    /// The temporary path (for error messages).
-    pub fn tmp_path(&self, rel: &str) -> PathBuf {
-        self.tmp.join(rel)
+    /// The path a file will have once the directory is in place (for error messages,
+    /// which never show the temporary directory).
+    pub fn shown_path(&self, rel: &str) -> PathBuf {
+        self.target.join(rel)
     }
 
     /// Moves the finished directory into place, replacing an existing target.
@@ -151,10 +248,11 @@ impl OutDir {
             std::fs::rename(&self.target, &old).map_err(|e| Error::io(&self.target, e))?;
         }
         std::fs::rename(&self.tmp, &self.target).map_err(|e| Error::io(&self.target, e))?;
-        if had_target {
-            std::fs::remove_dir_all(&old).map_err(|e| Error::io(&old, e))?;
-        }
+        unregister(&self.tmp);
         self.committed = true;
+        if had_target {
+            std::fs::remove_dir_all(&old).map_err(|e| Error::io(&self.target, e))?;
+        }
         Ok(())
     }
 }
@@ -162,8 +260,10 @@ impl OutDir {
 impl Drop for OutDir {
     fn drop(&mut self) {
         if !self.committed {
-            // Best effort: a leftover hidden directory is harmless, a half target is not.
+            // Best effort: a leftover hidden directory is harmless, a half target is not;
+            // the next run into the same target removes what is left.
             let _ = std::fs::remove_dir_all(&self.tmp);
+            unregister(&self.tmp);
         }
     }
 }
@@ -187,18 +287,78 @@ mod tests {
         let _ = std::fs::remove_dir_all(&base);
         let target = base.join("out");
         {
-            let d = OutDir::create(&target, false).unwrap();
+            let d = OutDir::create(&target, false, &[]).unwrap();
             d.write_all("a/b.txt", b"x").unwrap();
         }
         assert!(!target.exists());
-        let d = OutDir::create(&target, false).unwrap();
+        let manifest = crate::manifest::Manifest {
+            format_version: crate::manifest::MANIFEST_FORMAT_VERSION,
+            tool_version: "0".into(),
+            job: serde_json::Value::Null,
+            word_bits: 8,
+            files: Vec::new(),
+        };
+        let d = OutDir::create(&target, false, &[]).unwrap();
+        d.write_all("manifest.json", manifest.to_json().as_bytes())
+            .unwrap();
         d.write_all("f.txt", b"1").unwrap();
         d.commit().unwrap();
-        assert!(OutDir::create(&target, false).is_err());
-        let d = OutDir::create(&target, true).unwrap();
+        assert!(OutDir::create(&target, false, &[]).is_err());
+        let d = OutDir::create(&target, true, &[]).unwrap();
         d.write_all("g.txt", b"2").unwrap();
         d.commit().unwrap();
         assert!(!target.join("f.txt").exists() && target.join("g.txt").exists());
+        // Without a manifest, --force refuses: the directory is not weir's.
+        assert!(OutDir::create(&target, true, &[]).is_err());
         let _ = std::fs::remove_dir_all(&base);
+    }
+}
+
+#[cfg(test)]
+mod guard_tests {
+    use super::*;
+
+    fn base(name: &str) -> PathBuf {
+        let b = std::env::temp_dir().join(format!("weir-guard-{}-{name}", std::process::id()));
+        let _ = std::fs::remove_dir_all(&b);
+        std::fs::create_dir_all(&b).unwrap();
+        b
+    }
+
+    #[test]
+    fn force_never_replaces_a_file_or_foreign_directory_or_the_job() {
+        let b = base("force");
+        let file = b.join("copy.toml");
+        std::fs::write(&file, "x").unwrap();
+        let e = OutDir::create(&file, true, &[&file]).err().unwrap();
+        assert!(e.to_string().contains("not a directory"), "{e}");
+        assert_eq!(std::fs::read(&file).unwrap(), b"x");
+        let ft = b.join("ft");
+        std::fs::create_dir_all(&ft).unwrap();
+        let job = ft.join("job.toml");
+        std::fs::write(&job, "j").unwrap();
+        std::fs::write(ft.join("notes.txt"), "n").unwrap();
+        let e = OutDir::create(&ft, true, &[&job]).err().unwrap();
+        assert!(e.to_string().contains("job file"), "{e}");
+        let e = OutDir::create(&ft, true, &[]).err().unwrap();
+        assert!(e.to_string().contains("no weir manifest"), "{e}");
+        assert!(job.exists() && ft.join("notes.txt").exists());
+        let _ = std::fs::remove_dir_all(&b);
+    }
+
+    #[test]
+    fn stale_partials_of_dead_processes_are_removed_live_ones_kept() {
+        let b = base("stale");
+        // Process ids above the kernel's pid_max (at most 2^22 on Linux) are never live.
+        let dead = b.join(format!(".out{PARTIAL}4194399"));
+        std::fs::create_dir_all(dead.join("input")).unwrap();
+        // Process 1 (init) is always running: its directory stays.
+        let mine = b.join(format!(".out{PARTIAL}1"));
+        std::fs::create_dir_all(&mine).unwrap();
+        let d = OutDir::create(&b.join("out"), false, &[]).unwrap();
+        assert_eq!(d.stale_removed(), [dead.clone()]);
+        assert!(!dead.exists() && mine.exists());
+        drop(d);
+        let _ = std::fs::remove_dir_all(&b);
     }
 }

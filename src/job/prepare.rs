@@ -100,7 +100,9 @@ pub struct Prepared {
 impl Prepared {
     /// The region of `id`; every region was placed by [`prepare`].
     pub fn region(&self, id: &RegionId) -> &Placed {
-        self.map.get(id).expect("every region was placed in prepare")
+        self.map
+            .get(id)
+            .expect("every region was placed in prepare")
     }
 
     /// The image names of table `t` (its columns, or `rows` for a row-major record image).
@@ -241,10 +243,7 @@ pub fn prepare(spec: &JobSpec, job_dir: &Path) -> Result<Prepared> {
         .collect();
     let kernel = spec.kernel.bind(&schemas)?;
     let uses = kernel.inputs();
-    if let Some((name, ..)) = found
-        .iter()
-        .find(|f| !uses.iter().any(|u| u.table == f.0))
-    {
+    if let Some((name, ..)) = found.iter().find(|f| !uses.iter().any(|u| u.table == f.0)) {
         return Err(Error::input(format!(
             "table `{name}` is not read by the {} kernel",
             kernel.name()
@@ -253,16 +252,20 @@ pub fn prepare(spec: &JobSpec, job_dir: &Path) -> Result<Prepared> {
     let mut specs = spec.table_specs_mut();
     let mut tables = Vec::new();
     for u in &uses {
-        let k = found
-            .iter()
-            .position(|f| f.0 == u.table)
-            .ok_or_else(|| Error::input(format!("kernel: no input table is named `{}`", u.table)))?;
+        let k = found.iter().position(|f| f.0 == u.table).ok_or_else(|| {
+            Error::input(format!("kernel: no input table is named `{}`", u.table))
+        })?;
         let (name, schema) = (found[k].0.clone(), found[k].2.clone());
         let loaded = found[k].1.take();
         let input = &mut *specs[k];
         let source = match loaded {
             Some(t) => Source::Loaded(t),
-            None => Source::Gen(build_gen(input, &name, &schema, &kernel.select_ranges(&name))?),
+            None => Source::Gen(build_gen(
+                input,
+                &name,
+                &schema,
+                &kernel.select_ranges(&name),
+            )?),
         };
         let q = q_formats(input)?;
         let whole = (u.share == Share::Replicated).then(|| source.rows_of(0..source.rows()));
@@ -351,7 +354,10 @@ fn place(
         PlacementSpec::List(v) => Placement::Explicit(v.clone()),
     };
     let channels = placement.channels(l.partitions, l.channels)?;
-    let partitioned = tables.iter().filter(|t| t.share == Share::Partitioned).count();
+    let partitioned = tables
+        .iter()
+        .filter(|t| t.share == Share::Partitioned)
+        .count();
     if l.partition_rows.is_some() && partitioned != 1 {
         return Err(Error::input(
             "layout.partition_rows: only a job with one partitioned table can give explicit sizes",
@@ -368,14 +374,20 @@ fn place(
             (Share::Partitioned, Some(counts)) => explicit_split(counts, l.partitions, rows, g)?,
         });
     }
-    let channel_bytes = l
-        .channel_mib
-        .checked_mul(1 << 20)
-        .ok_or_else(|| Error::input(format!("layout.channel_mib = {} is too large", l.channel_mib)))?;
+    let channel_bytes = l.channel_mib.checked_mul(1 << 20).ok_or_else(|| {
+        Error::input(format!(
+            "layout.channel_mib = {} is too large",
+            l.channel_mib
+        ))
+    })?;
     let mut map = MemoryMap::new(word_bytes, l.channels, channel_bytes)?;
     let image_bytes = |t: &InputTable, col: &str, n: u64| -> u64 {
         if row_major {
-            let rec: u64 = t.schema.iter().map(|(_, ty)| u64::from(ty.bits() / 8)).sum();
+            let rec: u64 = t
+                .schema
+                .iter()
+                .map(|(_, ty)| u64::from(ty.bits() / 8))
+                .sum();
             n * rec
         } else {
             let ty = t.schema.iter().find(|(c, _)| c == col).expect("a column").1;
@@ -509,9 +521,7 @@ fn load_files(input: &InputSpec, table: &str, job_dir: &Path) -> Result<Option<T
         };
         cols.push(col);
     }
-    Table::new(table, cols)
-        .map(Some)
-        .map_err(Error::input)
+    Table::new(table, cols).map(Some).map_err(Error::input)
 }
 
 /// The generator the job describes (telemetry, or one generator per column); `ranges`

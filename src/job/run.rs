@@ -96,7 +96,9 @@ pub fn run_into(
                 .map(|(t, r)| (t.share == Share::Partitioned).then(|| t.source.rows_of(r.clone())))
                 .collect()
         });
-        timed(&mut clock.write_s, || write_partitions(&mut w, prep, e, &rows))?;
+        timed(&mut clock.write_s, || {
+            write_partitions(&mut w, prep, e, &rows)
+        })?;
         let mut kernel_s = 0.0;
         let run = timed(&mut kernel_s, || run_engine(prep, e, &rows))?;
         clock.kernel_s += kernel_s;
@@ -109,7 +111,9 @@ pub fn run_into(
         });
         ledger.merge(&run.ledger);
         goldens.push(run.outputs.iter().map(|o| o.name.clone()).collect());
-        timed(&mut clock.write_s, || write_goldens(&mut w, prep, e, &run.outputs))?;
+        timed(&mut clock.write_s, || {
+            write_goldens(&mut w, prep, e, &run.outputs)
+        })?;
         progress(e + 1, prep.engines.len());
     }
     let listed = timed(&mut clock.write_s, || {
@@ -134,11 +138,16 @@ fn run_engine(prep: &Prepared, e: usize, rows: &[Option<Table>]) -> Result<Engin
         .zip(&plan.rows)
         .map(|((t, part), r)| {
             let bases = |col: &str| prep.region(&prep.input_id(t, e, col)).base;
-            let rows = part.as_ref().or(t.whole.as_ref()).expect("rows or whole table");
+            let rows = part
+                .as_ref()
+                .or(t.whole.as_ref())
+                .expect("rows or whole table");
             EngineTable {
                 rows,
                 row_start: r.start,
-                channel: prep.region(&prep.input_id(t, e, &prep.image_columns(t)[0])).channel,
+                channel: prep
+                    .region(&prep.input_id(t, e, &prep.image_columns(t)[0]))
+                    .channel,
                 column_bases: if prep.row_major {
                     Vec::new()
                 } else {
@@ -219,7 +228,13 @@ fn write_partitions(
 }
 
 /// The manifest entry of image `ci` (`col`) of table `t`.
-fn image_entry(prep: &Prepared, t: &InputTable, ci: usize, col: &str, proto: &FileEntry) -> FileEntry {
+fn image_entry(
+    prep: &Prepared,
+    t: &InputTable,
+    ci: usize,
+    col: &str,
+    proto: &FileEntry,
+) -> FileEntry {
     FileEntry {
         column: Some(col.to_string()),
         elem: Some(if prep.row_major {
@@ -298,11 +313,20 @@ fn write_replicas(w: &mut RunFiles, prep: &Prepared) -> Result<()> {
         let images = image_bytes(prep, whole);
         for (ci, (col, bytes)) in cols.iter().zip(&images).enumerate() {
             let entry = image_entry(prep, t, ci, col, &proto);
-            w.images(&format!("input/{}.{col}", t.name), &prep.formats, bytes, &entry)?;
+            w.images(
+                &format!("input/{}.{col}", t.name),
+                &prep.formats,
+                bytes,
+                &entry,
+            )?;
         }
         if prep.spec.output.channel_images {
             for ch in prep.engine_channels() {
-                let e = prep.engines.iter().position(|p| p.channel == ch).expect("an engine");
+                let e = prep
+                    .engines
+                    .iter()
+                    .position(|p| p.channel == ch)
+                    .expect("an engine");
                 for (col, bytes) in cols.iter().zip(&images) {
                     w.channel_segment(prep.region(&prep.input_id(t, e, col)), bytes)?;
                 }
@@ -318,7 +342,10 @@ fn write_replicas(w: &mut RunFiles, prep: &Prepared) -> Result<()> {
 /// Writes engine `e`'s golden outputs: every image, then every typed array.
 fn write_goldens(w: &mut RunFiles, prep: &Prepared, e: usize, outputs: &[Golden]) -> Result<()> {
     let plan = &prep.engines[e];
-    let first = prep.tables.iter().position(|t| t.share == Share::Partitioned);
+    let first = prep
+        .tables
+        .iter()
+        .position(|t| t.share == Share::Partitioned);
     let gold = FileEntry {
         role: Some(Role::Golden),
         kernel: Some(prep.kernel.name().into()),
@@ -341,7 +368,12 @@ fn write_goldens(w: &mut RunFiles, prep: &Prepared, e: usize, outputs: &[Golden]
             base: o.region.map(|r| prep.region(&prep.output_id(e, r)).base),
             ..entry(o)
         };
-        w.images(&format!("golden/{}", stem(o)), &prep.formats, &o.bytes, &proto)?;
+        w.images(
+            &format!("golden/{}", stem(o)),
+            &prep.formats,
+            &o.bytes,
+            &proto,
+        )?;
     }
     if !prep.spec.output.typed_npy {
         return Ok(());
@@ -351,7 +383,13 @@ fn write_goldens(w: &mut RunFiles, prep: &Prepared, e: usize, outputs: &[Golden]
         match &o.arrays {
             Arrays::None => {}
             Arrays::Whole { descr, len } => {
-                w.typed(&format!("arrays/{name}.npy"), descr, &[*len], &o.bytes, &entry(o))?;
+                w.typed(
+                    &format!("arrays/{name}.npy"),
+                    descr,
+                    &[*len],
+                    &o.bytes,
+                    &entry(o),
+                )?;
             }
             Arrays::PerField => write_field_arrays(w, o, &name, &entry(o))?,
         }
@@ -392,7 +430,12 @@ fn write_records(
     let word_bits = prep.spec.layout.word_bits;
     let json = serde_json::to_string_pretty(&ledger.to_json(word_bits)).expect("json") + "\n";
     w.plain("ledger.json", Role::Ledger, "json", json.as_bytes())?;
-    w.plain("ledger.csv", Role::Ledger, "csv", ledger.to_csv().as_bytes())?;
+    w.plain(
+        "ledger.csv",
+        Role::Ledger,
+        "csv",
+        ledger.to_csv().as_bytes(),
+    )?;
     let map = crate::memmap::MapInfo { prep, goldens };
     w.plain("memory_map.vh", Role::Map, "vh", map.verilog().as_bytes())?;
     w.plain("memory_map.json", Role::Map, "json", map.json().as_bytes())?;

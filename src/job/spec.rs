@@ -282,16 +282,20 @@ mod tests {
 
     #[test]
     fn several_tables_are_named_by_their_sections() {
-        let text = MIN.replace("[input]", "[tables.b]").replace(
-            "[[input.columns]]",
-            "[[tables.b.columns]]",
-        ) + "[tables.a]\nrows = 1\n";
+        let text = MIN
+            .replace("[input]", "[tables.b]")
+            .replace("[[input.columns]]", "[[tables.b.columns]]")
+            + "[tables.a]\nrows = 1\n";
         let j = JobSpec::from_toml(&text, Path::new("j.toml")).unwrap();
         let names: Vec<String> = j.table_specs().unwrap().into_iter().map(|t| t.0).collect();
         assert_eq!(names, ["a", "b"]);
         let both = format!("{MIN}[tables.a]\nrows = 1\n");
         let j = JobSpec::from_toml(&both, Path::new("j.toml")).unwrap();
-        assert!(j.table_specs().unwrap_err().to_string().contains("both [input] and [tables.*]"));
+        assert!(j
+            .table_specs()
+            .unwrap_err()
+            .to_string()
+            .contains("both [input] and [tables.*]"));
     }
 
     #[test]

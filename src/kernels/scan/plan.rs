@@ -10,9 +10,7 @@ use std::ops::Range;
 
 use serde::{Deserialize, Serialize};
 
-use super::{
-    fuse_ranges, scan_partition, EngineIo, Isa, ScanOutput, ScanParams, COUNT_BYTES,
-};
+use super::{fuse_ranges, scan_partition, EngineIo, Isa, ScanOutput, ScanParams, COUNT_BYTES};
 use crate::error::{Error, Result};
 use crate::kernels::predicate;
 use crate::kernels::seam::{
