@@ -172,7 +172,7 @@ pub fn check(golden_dir: &Path, device: &Path, opts: CheckOptions) -> Result<Che
         let gpath = golden_dir.join(&g.path);
         let format = ImageFormat::from_path(&gpath)
             .ok_or_else(|| Error::input(format!("{}: unknown image format", gpath.display())))?;
-        let gbytes = std::fs::read(&gpath).map_err(|e| Error::io(&gpath, e))?;
+        let gbytes = std::fs::read(&gpath).map_err(|e| Error::read(&gpath, e))?;
         let gold = image::read_image(format, &gbytes, word_bits)
             .map_err(|e| Error::input(format!("{}: {e}", gpath.display())))?;
         let dump =

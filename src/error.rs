@@ -10,7 +10,8 @@ pub enum ErrorKind {
     Input,
     /// An output path exists and `--force` was not given.
     Exists,
-    /// Reading or writing a file failed at the operating-system level.
+    /// Writing (or preparing to write) a file failed at the operating-system level:
+    /// a full disk, a denied permission.
     Io,
 }
 
@@ -42,6 +43,14 @@ impl Error {
     pub fn io(path: &std::path::Path, err: std::io::Error) -> Error {
         Error {
             kind: ErrorKind::Io,
+            message: format!("{}: {err}", path.display()),
+        }
+    }
+
+    /// A failure reading a file the user named (a job, table or dump): bad input.
+    pub fn read(path: &std::path::Path, err: std::io::Error) -> Error {
+        Error {
+            kind: ErrorKind::Input,
             message: format!("{}: {err}", path.display()),
         }
     }

@@ -118,7 +118,7 @@ impl Manifest {
     /// Reads `DIR/manifest.json`, checking its version.
     pub fn load(dir: &Path) -> Result<Manifest> {
         let p = dir.join(MANIFEST_FILE);
-        let text = std::fs::read_to_string(&p).map_err(|e| Error::io(&p, e))?;
+        let text = std::fs::read_to_string(&p).map_err(|e| Error::read(&p, e))?;
         let m: Manifest = serde_json::from_str(&text)
             .map_err(|e| Error::input(format!("{}: {e}", p.display())))?;
         if m.format_version != MANIFEST_FORMAT_VERSION {

@@ -124,7 +124,7 @@ fn bench_scan(a: BenchScanArgs) -> Result<Outcome> {
     }
     let cal = match &a.calibration {
         Some(path) => {
-            let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+            let text = std::fs::read_to_string(path).map_err(|e| Error::read(path, e))?;
             Calibration::from_json(&text)
                 .map_err(|e| Error::input(format!("{}: {e}", path.display())))?
         }

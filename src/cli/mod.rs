@@ -1,5 +1,7 @@
 //! The command line: parses flags, calls the library, prints tables and sets the exit code
-//! (0 ok, 1 mismatch, 2 bad input or usage). Nothing below this module prints or exits.
+//! (0 ok, 1 mismatch, 2 bad input or usage, 3 a file-system failure such as a full disk or
+//! a denied permission, 130/143 stopped by SIGINT/SIGTERM). Nothing below this module
+//! prints or exits.
 
 /// Prints to standard output like `println!`, but a closed pipe (`weir inspect | head`)
 /// ends the program quietly instead of panicking.
@@ -30,8 +32,33 @@ pub enum Outcome {
     Mismatch,
 }
 
+/// Exit code of a run stopped by SIGINT (128 + 2) or SIGTERM (128 + 15).
+fn on_signals() {
+    use signal_hook::consts::{SIGINT, SIGTERM};
+    let Ok(mut signals) = signal_hook::iterator::Signals::new([SIGINT, SIGTERM]) else {
+        return;
+    };
+    std::thread::spawn(move || {
+        if let Some(sig) = signals.forever().next() {
+            let removed = weir::job::outdir::discard_partials();
+            let what = if sig == SIGINT {
+                "interrupted"
+            } else {
+                "terminated"
+            };
+            if removed > 0 {
+                eprintln!("weir: {what}; the partial output was removed, nothing was written");
+            } else {
+                eprintln!("weir: {what}");
+            }
+            std::process::exit(128 + sig);
+        }
+    });
+}
+
 /// Parses arguments, runs the command and maps the result to an exit code.
 pub fn main() -> ExitCode {
+    on_signals();
     let cli = match Cli::try_parse() {
         Ok(c) => c,
         Err(e) => {
@@ -45,7 +72,10 @@ pub fn main() -> ExitCode {
         Ok(Outcome::Mismatch) => ExitCode::from(1),
         Err(e) => {
             eprintln!("weir: error: {e}");
-            ExitCode::from(2)
+            match e.kind() {
+                weir::ErrorKind::Io => ExitCode::from(3),
+                _ => ExitCode::from(2),
+            }
         }
     }
 }

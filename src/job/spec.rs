@@ -259,7 +259,7 @@ impl JobSpec {
 
     /// Reads and parses a job file.
     pub fn load(path: &Path) -> Result<JobSpec> {
-        let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+        let text = std::fs::read_to_string(path).map_err(|e| Error::read(path, e))?;
         JobSpec::from_toml(&text, path)
     }
 }

@@ -67,7 +67,7 @@ fn push_cell(data: &mut ColumnData, ty: ElemType, cell: &str) -> std::result::Re
 /// Reads a CSV table. `schema` gives the expected columns and types; without it every
 /// header cell must carry its type (`name:type`). With both, they must agree.
 pub fn read_csv(path: &Path, table: &str, schema: Option<&[(String, ElemType)]>) -> Result<Table> {
-    let file = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
+    let file = std::fs::File::open(path).map_err(|e| Error::read(path, e))?;
     let at =
         |line: u64, msg: String| Error::input(format!("{}, line {line}: {msg}", path.display()));
     let mut rdr = csv::ReaderBuilder::new()

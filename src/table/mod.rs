@@ -73,7 +73,7 @@ pub fn byte_len(ty: ElemType, rows: u64) -> u64 {
 
 /// Reads a raw little-endian binary column file of type `ty`.
 pub fn read_bin_column(path: &std::path::Path, name: &str, ty: ElemType) -> Result<Column> {
-    let bytes = std::fs::read(path).map_err(|e| Error::io(path, e))?;
+    let bytes = std::fs::read(path).map_err(|e| Error::read(path, e))?;
     if ty.is_sub_byte() {
         return Err(Error::input(format!(
             "{}: raw binary columns of sub-byte type {ty} have no row count; use CSV or .npy",
@@ -115,7 +115,7 @@ pub fn write_npy_column<W: std::io::Write>(w: &mut W, col: &Column) -> std::io::
 /// Reads a 1-D `.npy` column. With `ty` given, the file's dtype must agree with it
 /// (a sub-byte type expects `|u1` and checks every value fits).
 pub fn read_npy_column(path: &std::path::Path, name: &str, ty: Option<ElemType>) -> Result<Column> {
-    let bytes = std::fs::read(path).map_err(|e| Error::io(path, e))?;
+    let bytes = std::fs::read(path).map_err(|e| Error::read(path, e))?;
     let (header, data) = crate::npy::read_npy(&bytes)
         .map_err(|e| Error::input(format!("{}: {e}", path.display())))?;
     if header.shape.len() != 1 {
