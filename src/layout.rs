@@ -231,7 +231,7 @@ impl MemoryMap {
         }
         if !channel_bytes.is_multiple_of(word_bytes) {
             return Err(Error::input(format!(
-                "channel size {channel_bytes} bytes is not a whole number of {word_bytes}-byte words"
+                "channel size {channel_bytes} bytes (channel_mib) is not a whole number of {word_bytes}-byte words (word_bits)"
             )));
         }
         Ok(MemoryMap {

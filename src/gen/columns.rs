@@ -74,6 +74,10 @@ enum V {
     F(f64),
 }
 
+/// The most distinct values per side of a Zipf-skewed column (the sampler keeps a table
+/// of this size).
+pub const MAX_DISTINCT: u64 = 1 << 24;
+
 impl ColumnGen {
     /// Checks the parameters against the type; the message names the column.
     pub fn validate(&self) -> Result<(), String> {
@@ -85,12 +89,47 @@ impl ColumnGen {
                 Err(format!("column `{n}`: {m}"))
             }
         };
+        // Integer columns take whole numbers inside the type (one past its maximum for an
+        // exclusive bound), never values that would be clamped or truncated silently.
+        let int_param = |key: &str, v: f64, excl: bool| -> Result<(), String> {
+            if self.ty.is_float() {
+                return ok(!v.is_nan(), &format!("`{key}` is NaN"));
+            }
+            let (tmin, tmax) = self.ty.int_range();
+            let top = tmax + i128::from(excl);
+            ok(
+                v.is_finite() && v.fract() == 0.0 && v >= tmin as f64 && v <= top as f64,
+                &format!(
+                    "`{key}` = {v} is not a whole number within the {} range {tmin}..={top}",
+                    self.ty
+                ),
+            )
+        };
         match &self.dist {
-            Dist::Uniform { min, max } => ok(min <= max, "min must not exceed max"),
+            Dist::Uniform { min, max } => {
+                int_param("min", *min, false)?;
+                int_param("max", *max, false)?;
+                ok(min <= max, "min must not exceed max")
+            }
             Dist::Normal { sd, min, max, .. } => {
+                for (k, v) in [("min", min), ("max", max)] {
+                    if v.is_finite() {
+                        int_param(k, *v, false)?;
+                    }
+                }
                 ok(*sd >= 0.0 && min <= max, "needs sd >= 0 and min <= max")
             }
-            Dist::Sequence { .. } => Ok(()),
+            Dist::Sequence { start, step } => {
+                int_param("start", *start, false)?;
+                if self.ty.is_float() {
+                    Ok(())
+                } else {
+                    ok(
+                        step.is_finite() && step.fract() == 0.0,
+                        "`step` must be a whole number",
+                    )
+                }
+            }
             Dist::Select {
                 selectivity,
                 lo,
@@ -103,6 +142,10 @@ impl ColumnGen {
                     (0.0..=1.0).contains(selectivity),
                     "selectivity must be within 0..=1",
                 )?;
+                int_param("lo", *lo, false)?;
+                int_param("hi", *hi, true)?;
+                int_param("min", *min, false)?;
+                int_param("max", *max, false)?;
                 ok(
                     min <= lo && lo < hi && hi <= max,
                     "needs min <= lo < hi <= max",
@@ -121,8 +164,10 @@ impl ColumnGen {
                 }
                 if let Skew::Zipf { theta, distinct } = skew {
                     ok(
-                        *theta >= 0.0 && *distinct >= 1,
-                        "zipf needs theta >= 0 and distinct >= 1",
+                        theta.is_finite() && *theta >= 0.0 && (1..=MAX_DISTINCT).contains(distinct),
+                        &format!(
+                            "zipf needs a finite theta >= 0 and 1 <= distinct <= {MAX_DISTINCT}"
+                        ),
                     )?;
                 }
                 Ok(())

@@ -237,7 +237,7 @@ mod tests {
 
     #[test]
     fn reads_a_writememh_style_dump() {
-        // Recalled from Icarus Verilog's output format, see FORMATS.md: a `// 0x%08x` line
+        // Icarus Verilog's `$writememh` output format (recalled from memory; tests/external.rs checks it against iverilog): a `// 0x%08x` line
         // before every 16 words, lowercase digits, `x` for a wholly unknown nibble and `X`
         // for a partly unknown one.
         let text = "// 0x00000000\na000\na001\na002\nxxxx\na004\na005\na006\na007\n\

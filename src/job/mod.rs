@@ -7,6 +7,7 @@
 //! ```
 
 pub mod files;
+pub mod limits;
 pub mod outdir;
 pub mod prepare;
 pub mod run;

@@ -189,11 +189,9 @@ pub fn prepare(spec: &JobSpec, job_dir: &Path) -> Result<Prepared> {
     if let Some(i) = &mut spec.input {
         i.table.get_or_insert_with(|| DEFAULT_TABLE.into());
     }
+    crate::job::limits::check(&spec)?;
     let l = spec.layout.clone();
-    let word_bytes = layout::word_bytes(l.word_bits)?;
-    if l.partitions == 0 {
-        return Err(Error::input("layout.partitions must be at least 1"));
-    }
+    let word_bytes = layout::word_bytes(l.word_bits).map_err(|e| e.context("layout.word_bits"))?;
     let formats = image_formats(&spec.output.formats)?;
     let row_major = match l.order.as_str() {
         "column" => false,
@@ -380,7 +378,8 @@ fn place(
             l.channel_mib
         ))
     })?;
-    let mut map = MemoryMap::new(word_bytes, l.channels, channel_bytes)?;
+    let mut map =
+        MemoryMap::new(word_bytes, l.channels, channel_bytes).map_err(|e| e.context("layout"))?;
     let image_bytes = |t: &InputTable, col: &str, n: u64| -> u64 {
         if row_major {
             let rec: u64 = t
