@@ -265,7 +265,7 @@ pub fn prepare(spec: &JobSpec, job_dir: &Path) -> Result<Prepared> {
                 &kernel.select_ranges(&name),
             )?),
         };
-        let q = q_formats(input)?;
+        let q = q_formats(input, &schema, &source)?;
         let whole = (u.share == Share::Replicated).then(|| source.rows_of(0..source.rows()));
         tables.push(InputTable {
             name,
@@ -319,20 +319,27 @@ fn table_schema(input: &InputSpec, loaded: Option<&Table>) -> Vec<(String, ElemT
     }
 }
 
-fn q_formats(input: &InputSpec) -> Result<Vec<Option<QFormat>>> {
-    input
-        .columns
+/// The fixed-point format of each schema column: the job's `q`, else a CSV header's.
+fn q_formats(
+    input: &InputSpec,
+    schema: &[(String, ElemType)],
+    source: &Source,
+) -> Result<Vec<Option<QFormat>>> {
+    schema
         .iter()
-        .map(|c| {
-            c.q.as_deref()
-                .map(|text| {
-                    let q = table::parse_q(text)
-                        .map_err(|m| Error::input(format!("input.columns `{}`: {m}", c.name)))?;
-                    q.check(c.ty)
-                        .map_err(|m| Error::input(format!("input.columns `{}`: {m}", c.name)))?;
-                    Ok(q)
-                })
-                .transpose()
+        .enumerate()
+        .map(|(i, (name, ty))| {
+            let given = input.columns.iter().find(|c| &c.name == name);
+            let Some(text) = given.and_then(|c| c.q.as_deref()) else {
+                return Ok(match source {
+                    Source::Loaded(t) => t.columns[i].q,
+                    Source::Gen(_) => None,
+                });
+            };
+            let err = |m: String| Error::input(format!("input.columns `{name}`: {m}"));
+            let q = table::parse_q(text).map_err(err)?;
+            q.check(*ty).map_err(err)?;
+            Ok(Some(q))
         })
         .collect()
 }

@@ -29,18 +29,32 @@ pub fn parse_q(s: &str) -> std::result::Result<QFormat, String> {
     let bad = || format!("`{s}` is not a fixed-point format like Q3.12");
     let rest = s.strip_prefix('Q').ok_or_else(bad)?;
     let (i, f) = rest.split_once('.').ok_or_else(bad)?;
-    Ok(QFormat {
+    let q = QFormat {
         int_bits: i.parse().map_err(|_| bad())?,
         frac_bits: f.parse().map_err(|_| bad())?,
-    })
+    };
+    if u64::from(q.int_bits) + u64::from(q.frac_bits) + 1 > 64 {
+        return Err(format!("`{s}` needs more than 64 bits with the sign"));
+    }
+    Ok(q)
 }
 
 /// Parses one CSV cell as a value of `ty`, explaining a failure.
 fn parse_cell<T: Elem>(cell: &str, ty: ElemType) -> std::result::Result<T, String> {
+    let t = cell.trim();
+    if ty.is_float() && !t.to_ascii_lowercase().contains("inf") {
+        // A finite number too large for the type is an error, never a silent infinity.
+        let overflows = match t.parse::<f64>() {
+            Ok(x) => x.is_infinite() || (ty == ElemType::F32 && (x as f32).is_infinite()),
+            Err(_) => false,
+        };
+        if overflows {
+            return Err(format!("value {t} overflows {ty}"));
+        }
+    }
     if let Some(v) = T::parse_text(cell) {
         return Ok(v);
     }
-    let t = cell.trim();
     if !ty.is_float() && t.parse::<i128>().is_ok() {
         return Err(format!("value {t} is out of range for {ty}"));
     }

@@ -250,12 +250,11 @@ impl QFormat {
                 self.int_bits, self.frac_bits
             ));
         }
-        if self.int_bits + self.frac_bits + 1 > ty.bits() {
+        let need = u64::from(self.int_bits) + u64::from(self.frac_bits) + 1;
+        if need > u64::from(ty.bits()) {
             return Err(format!(
-                "Q{}.{} needs {} bits with the sign, more than {ty} holds",
-                self.int_bits,
-                self.frac_bits,
-                self.int_bits + self.frac_bits + 1
+                "Q{}.{} needs {need} bits with the sign, more than {ty} holds",
+                self.int_bits, self.frac_bits
             ));
         }
         Ok(())
