@@ -317,11 +317,16 @@ fn bad_jobs_fail_cleanly_and_write_nothing() {
         (
             "zero-parts",
             small_job("partitions = 0", "v < 3").replace("partitions = 3\n", ""),
-            "partitions must be at least 1",
+            "layout.partitions = 0: must be within 1..=1024",
+        ),
+        (
+            "zero-channel",
+            small_job("channel_mib = 0", "v < 3"),
+            "layout.channel_mib = 0: must be within 1..=1048576",
         ),
         (
             "too-big",
-            small_job("channel_mib = 0", "v < 3"),
+            small_job("channel_mib = 1", "v < 3").replace("rows = 3000", "rows = 3000000"),
             "does not fit channel 0",
         ),
         (
