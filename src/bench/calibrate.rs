@@ -13,6 +13,7 @@
 //! (glibc's switches to non-temporal stores for large copies; recalled from memory).
 
 use super::stats::{summarize, time_runs};
+use crate::kernels::isa::{Isa, Level};
 use rayon::ThreadPoolBuilder;
 use serde::{Deserialize, Serialize};
 use std::hint::black_box;
@@ -137,7 +138,7 @@ pub struct Calibration {
     /// CPU model name from `/proc/cpuinfo`, or "unknown".
     pub cpu: String,
     /// Vector instruction set the read and write loops were compiled for: the
-    /// widest detected at run time, "avx512", "avx2" or "baseline".
+    /// widest detected at run time, "avx512", "avx2" or "portable".
     pub isa: String,
     /// One point per thread count, ascending.
     pub points: Vec<BandwidthPoint>,
@@ -201,7 +202,7 @@ pub fn calibrate(
         .for_each(|(i, w)| *w = pattern(i));
     let passes = MIN_BYTES_PER_SAMPLE.div_ceil(params.bytes).max(1) as usize;
     let sample_bytes = params.bytes as f64 * passes as f64;
-    let isa = Isa::available()[0];
+    let isa = Isa::detect();
 
     let total = params.max_threads * 3;
     let mut done = 0;
@@ -404,45 +405,6 @@ fn cpu_model() -> String {
         .unwrap_or_else(|| "unknown".to_string())
 }
 
-/// A vector instruction set the running CPU supports. Values are only created by
-/// [`Isa::available`], after run-time detection, which is what makes the
-/// `target_feature` calls in [`run_kernel`] sound.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-enum Isa {
-    #[cfg(target_arch = "x86_64")]
-    Avx512,
-    #[cfg(target_arch = "x86_64")]
-    Avx2,
-    Baseline,
-}
-
-impl Isa {
-    /// Supported instruction sets, widest first; never empty.
-    fn available() -> Vec<Isa> {
-        let candidates = [
-            #[cfg(target_arch = "x86_64")]
-            (Isa::Avx512, is_x86_feature_detected!("avx512f")),
-            #[cfg(target_arch = "x86_64")]
-            (Isa::Avx2, is_x86_feature_detected!("avx2")),
-            (Isa::Baseline, true),
-        ];
-        candidates
-            .into_iter()
-            .filter_map(|(isa, detected)| detected.then_some(isa))
-            .collect()
-    }
-
-    fn name(self) -> &'static str {
-        match self {
-            #[cfg(target_arch = "x86_64")]
-            Isa::Avx512 => "avx512",
-            #[cfg(target_arch = "x86_64")]
-            Isa::Avx2 => "avx2",
-            Isa::Baseline => "baseline",
-        }
-    }
-}
-
 /// A loop body compiled once per instruction set: `run` is inlined into each
 /// `target_feature` wrapper, so the compiler vectorises it for that set.
 trait Kernel {
@@ -495,12 +457,12 @@ impl Kernel for Fill<'_> {
 /// 16 ymm or 16 xmm across the streams): with 4 zmm in all, one core read DRAM
 /// about 30% slower in testing.
 fn read_sum(isa: Isa, data: &[u64]) -> u64 {
-    match isa {
+    match isa.level() {
         #[cfg(target_arch = "x86_64")]
-        Isa::Avx512 => run_kernel(isa, ReadSum::<64>(data)),
+        Level::Avx512 => run_kernel(isa, ReadSum::<64>(data)),
         #[cfg(target_arch = "x86_64")]
-        Isa::Avx2 => run_kernel(isa, ReadSum::<16>(data)),
-        Isa::Baseline => run_kernel(isa, ReadSum::<8>(data)),
+        Level::Avx2 => run_kernel(isa, ReadSum::<16>(data)),
+        Level::Portable => run_kernel(isa, ReadSum::<8>(data)),
     }
 }
 
@@ -509,24 +471,30 @@ fn fill(isa: Isa, data: &mut [u64], value: u64) {
 }
 
 fn run_kernel<K: Kernel>(isa: Isa, kernel: K) -> K::Output {
-    match isa {
-        // SAFETY: an `Isa` value exists only if `Isa::available` detected it.
+    match isa.level() {
+        // SAFETY: an AVX-512 `Isa` exists only after run-time detection of AVX-512 F
+        // (and more), the one feature `run_avx512` enables (see `kernels::isa`).
         #[cfg(target_arch = "x86_64")]
-        Isa::Avx512 => unsafe { run_avx512(kernel) },
-        // SAFETY: as above.
+        Level::Avx512 => unsafe { run_avx512(kernel) },
+        // SAFETY: an AVX2 `Isa` exists only after run-time detection of AVX2 (and more),
+        // the one feature `run_avx2` enables.
         #[cfg(target_arch = "x86_64")]
-        Isa::Avx2 => unsafe { run_avx2(kernel) },
-        Isa::Baseline => kernel.run(),
+        Level::Avx2 => unsafe { run_avx2(kernel) },
+        Level::Portable => kernel.run(),
     }
 }
 
 #[cfg(target_arch = "x86_64")]
+/// # Safety
+/// The CPU must support AVX-512 F.
 #[target_feature(enable = "avx512f")]
 unsafe fn run_avx512<K: Kernel>(kernel: K) -> K::Output {
     kernel.run()
 }
 
 #[cfg(target_arch = "x86_64")]
+/// # Safety
+/// The CPU must support AVX2.
 #[target_feature(enable = "avx2")]
 unsafe fn run_avx2<K: Kernel>(kernel: K) -> K::Output {
     kernel.run()

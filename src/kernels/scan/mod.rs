@@ -18,7 +18,8 @@
 mod avx512;
 mod mask;
 
-pub use mask::{for_each_match, Isa};
+pub use crate::kernels::isa::Isa;
+pub use mask::for_each_match;
 
 use rayon::prelude::*;
 
@@ -461,7 +462,7 @@ mod tests {
             for t in [&big, &small, &big] {
                 let (count, ledger) =
                     scan_partition_into(Isa::detect(), t, 5, &params, &io, &mut bufs);
-                let fresh = scan_partition(Isa::Portable, t, 5, &params, &io);
+                let fresh = scan_partition(Isa::portable(), t, 5, &params, &io);
                 assert_eq!(
                     (count, &ledger, &bufs.out),
                     (fresh.count, &fresh.ledger, &fresh.out)
