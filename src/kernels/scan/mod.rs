@@ -16,6 +16,7 @@
 
 #[cfg(target_arch = "x86_64")]
 mod avx512;
+mod compact;
 mod mask;
 
 pub use crate::kernels::isa::Isa;
@@ -247,11 +248,22 @@ fn scan_chunk(
             visit_matches(isa, table, params, r, masks, scratch, buckets, put)
         }
         ScanOutput::RowIds => {
-            // The job chooses u32 ids only when every row id fits.
-            let put = |out: &mut Vec<u8>, row: usize| {
-                out.extend_from_slice(&((base + row as u64) as u32).to_le_bytes())
-            };
-            visit_matches(isa, table, params, r, masks, scratch, buckets, put)
+            // The job chooses u32 ids only when every row id fits (and a chunk is whole
+            // mask words, so the last word's ids fit too).
+            let mut count = 0u64;
+            mask::visit(
+                isa,
+                &params.predicate,
+                table,
+                r,
+                masks,
+                scratch,
+                &mut |k, i, m| {
+                    count += u64::from(m.count_ones());
+                    compact::push_ids_u32(&mut buckets[k], (base + 64 * i as u64) as u32, m);
+                },
+            );
+            count
         }
         ScanOutput::Project(cols) => {
             let start = r.start;
