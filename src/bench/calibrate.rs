@@ -683,7 +683,7 @@ mod tests {
 
     #[test]
     fn from_json_rejects_missing_fields_and_empty_points() {
-        let err = Calibration::from_json("{\"format_version\": 1}").unwrap_err();
+        let err = Calibration::from_json(&format!("{{\"format_version\": {FORMAT_VERSION}}}")).unwrap_err();
         assert!(err.to_string().contains("missing field"), "{err}");
         let mut empty = sample();
         empty.points.clear();

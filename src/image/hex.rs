@@ -205,7 +205,7 @@ mod tests {
     #[test]
     fn table_encoder_matches_formatted_digits_for_every_width_and_length() {
         // The reference is the standard library's `{:02x}` formatting, word by word.
-        let bytes: Vec<u8> = (0..700u32).map(|i| (i * 37 % 256) as u8).collect();
+        let bytes: Vec<u8> = (0..2000u32).map(|i| (i * 37 % 256) as u8).collect();
         for word_bytes in [1, 2, 3, 4, 8, 64, 512] {
             for len in [0, 1, word_bytes - 1, word_bytes, 3 * word_bytes + 1, 700] {
                 let mut got = b"keep".to_vec();
