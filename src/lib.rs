@@ -4,6 +4,8 @@
 //! The library does the work; the `weir` binary is a thin layer over it. See DEVELOPERS.md
 //! for the rooms of the house and the data path between them.
 
+#![deny(unsafe_op_in_unsafe_fn)]
+
 pub mod bench;
 pub mod check;
 pub mod error;

@@ -615,18 +615,9 @@ fn random_predicate(rng: &mut Rng, table: &Table) -> (String, Bound, Vec<u64>) {
     (text, bound, ids)
 }
 
-/// Every instruction set this machine runs: portable, AVX2 if present, and the widest.
+/// Every instruction set this machine runs, from run-time detection (portable always).
 fn isas() -> Vec<Isa> {
-    let mut v = vec![Isa::Portable];
-    #[cfg(target_arch = "x86_64")]
-    if std::is_x86_feature_detected!("avx2") {
-        v.push(Isa::Avx2);
-    }
-    let widest = Isa::detect();
-    if !v.contains(&widest) {
-        v.push(widest);
-    }
-    v
+    Isa::available()
 }
 
 /// An engine whose columns sit back to back from address 0 on words of `word_bytes`.

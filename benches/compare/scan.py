@@ -1,9 +1,12 @@
 #!/usr/bin/env python3
-"""numpy side of weir's predicate-scan benchmark.
+"""Peers of weir's predicate-scan benchmark: numpy, polars and DuckDB.
 
-Times np.flatnonzero((a >= lo) & (a < hi)) over a 1-D uint32 .npy file held in
-memory, prints the timings, and optionally writes them as JSON and compares them
-with the median from weir's own scan benchmark.
+Each peer finds the row ids of lo <= a < hi over a 1-D uint32 .npy file held in
+memory (numpy: np.flatnonzero; polars: a filtered row index; DuckDB: a SQL query
+over the same arrays). Every peer must return the same row ids as numpy, or the
+script fails. Prints each peer's timings, optionally writes them as JSON, and
+with --weir-json prints each peer's time over weir's median (a ratio above 1 means
+weir is faster).
 
 Usage: scan.py --npy PATH --lo LO --hi HI [--runs 5] [--json OUT] [--weir-json PATH]
 """
@@ -15,6 +18,15 @@ import sys
 import time
 
 import numpy as np
+
+try:  # optional peers: a missing one is reported and skipped
+    import polars as pl
+except ImportError:
+    pl = None
+try:
+    import duckdb
+except ImportError:
+    duckdb = None
 
 U32_MAX = 2**32 - 1
 
@@ -62,17 +74,54 @@ def scan(a, lo, hi):
     return np.flatnonzero((a >= np.uint32(lo)) & (a < np.uint32(hi)))
 
 
-def time_scan(a, lo, hi, runs):
-    """Returns (match count, per-run seconds) after one untimed warm-up."""
-    matches = scan(a, lo, hi).size
+def polars_scan(a):
+    """A polars scan of the same column: the row index of the matching rows."""
+    df = pl.DataFrame({"v": a}).with_row_index("i")
+
+    def run(lo, hi):
+        out = df.filter((pl.col("v") >= lo) & (pl.col("v") < hi))
+        return out.get_column("i").to_numpy()
+
+    return run
+
+
+def duckdb_scan(a):
+    """A DuckDB query over the same arrays (no copy into a table)."""
+    con = duckdb.connect()
+    con.register("t", {"i": np.arange(a.size, dtype=np.uint64), "v": a})
+
+    def run(lo, hi):
+        q = "select i from t where v >= ? and v < ? order by i"
+        return con.execute(q, [lo, hi]).fetchnumpy()["i"]
+
+    return run
+
+
+def peers(a):
+    """(name, version, run) of each peer available here; numpy first, the oracle."""
+    found = [("numpy", np.__version__, lambda lo, hi: scan(a, lo, hi))]
+    if pl is not None:
+        found.append(("polars", pl.__version__, polars_scan(a)))
+    else:
+        print("polars not installed: skipped", file=sys.stderr)
+    if duckdb is not None:
+        found.append(("duckdb", duckdb.__version__, duckdb_scan(a)))
+    else:
+        print("duckdb not installed: skipped", file=sys.stderr)
+    return found
+
+
+def time_scan(run, lo, hi, runs):
+    """Returns (row ids, per-run seconds) after one untimed warm-up."""
+    ids = np.asarray(run(lo, hi))
     times = []
     for _ in range(runs):
         start = time.perf_counter()
-        found = scan(a, lo, hi)
+        found = run(lo, hi)
         times.append(time.perf_counter() - start)
-        if found.size != matches:
-            raise ScanError(f"match count changed between runs: {matches} then {found.size}")
-    return matches, times
+        if len(found) != ids.size:
+            raise ScanError(f"match count changed between runs: {ids.size} then {len(found)}")
+    return ids, times
 
 
 def weir_median(path):
@@ -98,33 +147,40 @@ def main(argv):
     # Read the comparison file first so a bad path fails before a long run.
     weir_s = weir_median(args.weir_json) if args.weir_json else None
     a = load_u32(args.npy)
-    matches, times = time_scan(a, args.lo, args.hi, args.runs)
-    median_s = statistics.median(times)  # even count: mean of the middle two
-    result = {
-        "tool": "numpy",
-        "numpy_version": np.__version__,
-        "rows": int(a.size),
-        "bytes": int(a.nbytes),
-        "matches": int(matches),
-        "median_s": median_s,
-        "min_s": min(times),
-        "max_s": max(times),
-        "gbps": a.nbytes / median_s / 1e9,
-    }
-    print(f"rows {result['rows']}  bytes {result['bytes']}  matches {result['matches']}  runs {args.runs}")
-    print(f"median_s {result['median_s']:.6f}")
-    print(f"min_s {result['min_s']:.6f}")
-    print(f"max_s {result['max_s']:.6f}")
-    print(f"gbps {result['gbps']:.2f}  (input bytes / median, 1 GB = 1e9 bytes)")
+    print(f"rows {a.size}  bytes {a.nbytes}  runs {args.runs}  (GB/s = input bytes / median, 1 GB = 1e9 bytes)")
+    oracle = None
+    results = []
+    for name, version, run in peers(a):
+        ids, times = time_scan(run, args.lo, args.hi, args.runs)
+        if oracle is None:
+            oracle = ids
+        elif not np.array_equal(ids.astype(np.uint64), oracle.astype(np.uint64)):
+            raise ScanError(f"{name} found {ids.size} rows, numpy {oracle.size}: the row ids differ")
+        median_s = statistics.median(times)  # even count: mean of the middle two
+        r = {
+            "tool": name,
+            "version": version,
+            "rows": int(a.size),
+            "bytes": int(a.nbytes),
+            "matches": int(ids.size),
+            "median_s": median_s,
+            "min_s": min(times),
+            "max_s": max(times),
+            "gbps": a.nbytes / median_s / 1e9,
+        }
+        results.append(r)
+        line = f"{name:7} {version:10} matches {r['matches']}  median_s {median_s:.6f}  min_s {r['min_s']:.6f}  max_s {r['max_s']:.6f}  gbps {r['gbps']:.2f}"
+        if weir_s is not None:
+            line += f"  {name}/weir {median_s / weir_s:.2f}x"
+        print(line)
+    print(f"all {len(results)} peers found the same {oracle.size} row ids")
     if args.json:
         try:
             with open(args.json, "w", encoding="utf-8") as f:
-                json.dump(result, f, indent=2)
+                json.dump({"peers": results}, f, indent=2)
                 f.write("\n")
         except OSError as e:
             raise ScanError(f"{args.json}: cannot write: {e}") from e
-    if weir_s is not None:
-        print(f"weir is {median_s / weir_s:.2f}x faster than numpy")
 
 
 if __name__ == "__main__":

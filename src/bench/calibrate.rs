@@ -12,7 +12,8 @@
 //! Copy is `copy_from_slice`, so the platform `memcpy` picks its own instructions
 //! (glibc's switches to non-temporal stores for large copies; recalled from memory).
 
-use super::stats::{summarize, time_runs};
+use super::stats::{summarize, time_runs, Summary};
+use crate::kernels::isa::{Isa, Level};
 use rayon::ThreadPoolBuilder;
 use serde::{Deserialize, Serialize};
 use std::hint::black_box;
@@ -20,7 +21,7 @@ use std::ops::Range;
 use std::sync::{Mutex, PoisonError};
 
 /// Version of the JSON layout written by [`Calibration::to_json`].
-pub const FORMAT_VERSION: u32 = 1;
+pub const FORMAT_VERSION: u32 = 2;
 
 /// Default buffer size: 1 GiB, well past the last-level cache of current servers.
 pub const DEFAULT_BYTES: u64 = 1 << 30;
@@ -110,19 +111,45 @@ impl Default for CalibrationParams {
     }
 }
 
-/// Best measured rates for one thread count, GB/s (1e9 bytes/s).
+/// One measure's rate over its timed runs, GB/s (1e9 bytes/s).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct Rate {
+    /// Rate at the median run time.
+    pub median_gbps: f64,
+    /// Rate at the third-quartile (slower) run time: the low end of the spread.
+    pub q1_gbps: f64,
+    /// Rate at the first-quartile (faster) run time: the high end of the spread.
+    pub q3_gbps: f64,
+    /// Rate of the fastest run.
+    pub best_gbps: f64,
+}
+
+impl Rate {
+    /// The rate of moving `bytes` in each of the timed runs summarised by `s`.
+    pub fn from_times(bytes: f64, s: &Summary) -> Rate {
+        let r = |t: f64| bytes / t / 1e9;
+        Rate {
+            median_gbps: r(s.median_s),
+            q1_gbps: r(s.q3_s),
+            q3_gbps: r(s.q1_s),
+            best_gbps: r(s.min_s),
+        }
+    }
+}
+
+/// Measured rates for one thread count.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct BandwidthPoint {
     /// Worker threads used.
     pub threads: usize,
     /// Bytes read per second by a wrapping-sum reduction over the buffer.
-    pub read_gbps: f64,
+    pub read: Rate,
     /// Bytes written per second by filling the buffer with ordinary (temporal)
     /// stores. The read-for-ownership traffic this causes is not counted.
-    pub write_gbps: f64,
+    pub write: Rate,
     /// Bytes read plus bytes written per second by `copy_from_slice`, so a copy of
     /// N bytes counts 2N, as STREAM's Copy does (recalled from memory).
-    pub copy_gbps: f64,
+    pub copy: Rate,
 }
 
 /// A saved host calibration.
@@ -137,7 +164,7 @@ pub struct Calibration {
     /// CPU model name from `/proc/cpuinfo`, or "unknown".
     pub cpu: String,
     /// Vector instruction set the read and write loops were compiled for: the
-    /// widest detected at run time, "avx512", "avx2" or "baseline".
+    /// widest detected at run time, "avx512", "avx2" or "portable".
     pub isa: String,
     /// One point per thread count, ascending.
     pub points: Vec<BandwidthPoint>,
@@ -170,12 +197,16 @@ impl Calibration {
         Ok(calibration)
     }
 
-    /// Read rate measured with `threads` threads, or the best over all thread
-    /// counts when that count was not measured; 0.0 if there are no points.
-    pub fn best_read_gbps(&self, threads: usize) -> f64 {
+    /// Median read rate measured with `threads` threads, or the highest median over
+    /// all thread counts when that count was not measured; 0.0 if there are no points.
+    pub fn read_gbps(&self, threads: usize) -> f64 {
         match self.points.iter().find(|p| p.threads == threads) {
-            Some(point) => point.read_gbps,
-            None => self.points.iter().map(|p| p.read_gbps).fold(0.0, f64::max),
+            Some(point) => point.read.median_gbps,
+            None => self
+                .points
+                .iter()
+                .map(|p| p.read.median_gbps)
+                .fold(0.0, f64::max),
         }
     }
 }
@@ -184,9 +215,9 @@ impl Calibration {
 ///
 /// Buffers are allocated and written once before any timing so page faults are
 /// not measured. Each thread works on its own contiguous, line-aligned slice.
-/// Each measure reports its best (shortest) of `params.runs` timed runs after one
-/// warm-up: bandwidth is a capacity figure and interference only ever slows a run
-/// down, so the fastest run is the closest to it (common practice). `progress`
+/// Each measure reports the median of `params.runs` timed runs after one warm-up,
+/// with the quartiles as its spread and the fastest run beside them: on a shared host
+/// the best run alone swings from one invocation to the next. `progress`
 /// is called with (measures done, measures total) as the work advances.
 pub fn calibrate(
     params: &CalibrationParams,
@@ -201,7 +232,7 @@ pub fn calibrate(
         .for_each(|(i, w)| *w = pattern(i));
     let passes = MIN_BYTES_PER_SAMPLE.div_ceil(params.bytes).max(1) as usize;
     let sample_bytes = params.bytes as f64 * passes as f64;
-    let isa = Isa::available()[0];
+    let isa = Isa::detect();
 
     let total = params.max_threads * 3;
     let mut done = 0;
@@ -216,11 +247,11 @@ pub fn calibrate(
                 message: e.to_string(),
             })?;
         let ranges = split_lines(words, threads);
-        let best_seconds = |f: &mut dyn FnMut()| summarize(&time_runs(1, params.runs, f)).min_s;
+        let timings = |f: &mut dyn FnMut()| summarize(&time_runs(1, params.runs, f));
 
         let read_s = {
             let src_parts = slices(src.as_slice(), &ranges);
-            best_seconds(&mut || {
+            timings(&mut || {
                 pool.broadcast(|ctx| {
                     for _ in 0..passes {
                         black_box(read_sum(isa, black_box(src_parts[ctx.index()])));
@@ -233,7 +264,7 @@ pub fn calibrate(
 
         let write_s = {
             let dst_parts = slices_mut(dst.as_mut_slice(), &ranges);
-            best_seconds(&mut || {
+            timings(&mut || {
                 pool.broadcast(|ctx| {
                     let mut part = lock(&dst_parts[ctx.index()]);
                     for pass in 0..passes {
@@ -248,7 +279,7 @@ pub fn calibrate(
         let copy_s = {
             let src_parts = slices(src.as_slice(), &ranges);
             let dst_parts = slices_mut(dst.as_mut_slice(), &ranges);
-            best_seconds(&mut || {
+            timings(&mut || {
                 pool.broadcast(|ctx| {
                     let mut part = lock(&dst_parts[ctx.index()]);
                     for _ in 0..passes {
@@ -262,9 +293,9 @@ pub fn calibrate(
 
         points.push(BandwidthPoint {
             threads,
-            read_gbps: sample_bytes / read_s / 1e9,
-            write_gbps: sample_bytes / write_s / 1e9,
-            copy_gbps: 2.0 * sample_bytes / copy_s / 1e9,
+            read: Rate::from_times(sample_bytes, &read_s),
+            write: Rate::from_times(sample_bytes, &write_s),
+            copy: Rate::from_times(2.0 * sample_bytes, &copy_s),
         });
     }
 
@@ -404,42 +435,46 @@ fn cpu_model() -> String {
         .unwrap_or_else(|| "unknown".to_string())
 }
 
-/// A vector instruction set the running CPU supports. Values are only created by
-/// [`Isa::available`], after run-time detection, which is what makes the
-/// `target_feature` calls in [`run_kernel`] sound.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-enum Isa {
-    #[cfg(target_arch = "x86_64")]
-    Avx512,
-    #[cfg(target_arch = "x86_64")]
-    Avx2,
-    Baseline,
+/// A streaming read pass over its own buffer, split across the threads of the current
+/// rayon pool in line-aligned slices: the reference of the interleaved benches
+/// (`bench::interleave`). The loop is the calibration's read loop.
+pub struct ReadReference {
+    buf: AlignedWords,
+    isa: Isa,
 }
 
-impl Isa {
-    /// Supported instruction sets, widest first; never empty.
-    fn available() -> Vec<Isa> {
-        let candidates = [
-            #[cfg(target_arch = "x86_64")]
-            (Isa::Avx512, is_x86_feature_detected!("avx512f")),
-            #[cfg(target_arch = "x86_64")]
-            (Isa::Avx2, is_x86_feature_detected!("avx2")),
-            (Isa::Baseline, true),
-        ];
-        candidates
-            .into_iter()
-            .filter_map(|(isa, detected)| detected.then_some(isa))
-            .collect()
+impl ReadReference {
+    /// A reference reading `bytes` (rounded down to whole 8-byte words, at least one
+    /// line), filled once so every page is resident before timing.
+    pub fn new(bytes: u64) -> Result<ReadReference, CalibrationError> {
+        let words = usize::try_from((bytes / 8).max(LINE_WORDS as u64))
+            .map_err(|_| CalibrationError::Alloc { bytes })?;
+        let mut buf = AlignedWords::new(words, bytes)?;
+        buf.as_mut_slice()
+            .iter_mut()
+            .enumerate()
+            .for_each(|(i, w)| *w = pattern(i));
+        Ok(ReadReference {
+            buf,
+            isa: Isa::detect(),
+        })
     }
 
-    fn name(self) -> &'static str {
-        match self {
-            #[cfg(target_arch = "x86_64")]
-            Isa::Avx512 => "avx512",
-            #[cfg(target_arch = "x86_64")]
-            Isa::Avx2 => "avx2",
-            Isa::Baseline => "baseline",
-        }
+    /// Bytes one pass reads.
+    pub fn bytes(&self) -> u64 {
+        self.buf.words as u64 * 8
+    }
+
+    /// One pass: every thread of the current pool reads its slice once.
+    pub fn run(&self) {
+        let data = self.buf.as_slice();
+        let ranges = split_lines(data.len(), rayon::current_num_threads());
+        rayon::broadcast(|ctx| {
+            black_box(read_sum(
+                self.isa,
+                black_box(&data[ranges[ctx.index()].clone()]),
+            ));
+        });
     }
 }
 
@@ -495,12 +530,12 @@ impl Kernel for Fill<'_> {
 /// 16 ymm or 16 xmm across the streams): with 4 zmm in all, one core read DRAM
 /// about 30% slower in testing.
 fn read_sum(isa: Isa, data: &[u64]) -> u64 {
-    match isa {
+    match isa.level() {
         #[cfg(target_arch = "x86_64")]
-        Isa::Avx512 => run_kernel(isa, ReadSum::<64>(data)),
+        Level::Avx512 => run_kernel(isa, ReadSum::<64>(data)),
         #[cfg(target_arch = "x86_64")]
-        Isa::Avx2 => run_kernel(isa, ReadSum::<16>(data)),
-        Isa::Baseline => run_kernel(isa, ReadSum::<8>(data)),
+        Level::Avx2 => run_kernel(isa, ReadSum::<16>(data)),
+        Level::Portable => run_kernel(isa, ReadSum::<8>(data)),
     }
 }
 
@@ -509,24 +544,30 @@ fn fill(isa: Isa, data: &mut [u64], value: u64) {
 }
 
 fn run_kernel<K: Kernel>(isa: Isa, kernel: K) -> K::Output {
-    match isa {
-        // SAFETY: an `Isa` value exists only if `Isa::available` detected it.
+    match isa.level() {
+        // SAFETY: an AVX-512 `Isa` exists only after run-time detection of AVX-512 F
+        // (and more), the one feature `run_avx512` enables (see `kernels::isa`).
         #[cfg(target_arch = "x86_64")]
-        Isa::Avx512 => unsafe { run_avx512(kernel) },
-        // SAFETY: as above.
+        Level::Avx512 => unsafe { run_avx512(kernel) },
+        // SAFETY: an AVX2 `Isa` exists only after run-time detection of AVX2 (and more),
+        // the one feature `run_avx2` enables.
         #[cfg(target_arch = "x86_64")]
-        Isa::Avx2 => unsafe { run_avx2(kernel) },
-        Isa::Baseline => kernel.run(),
+        Level::Avx2 => unsafe { run_avx2(kernel) },
+        Level::Portable => kernel.run(),
     }
 }
 
 #[cfg(target_arch = "x86_64")]
+/// # Safety
+/// The CPU must support AVX-512 F.
 #[target_feature(enable = "avx512f")]
 unsafe fn run_avx512<K: Kernel>(kernel: K) -> K::Output {
     kernel.run()
 }
 
 #[cfg(target_arch = "x86_64")]
+/// # Safety
+/// The CPU must support AVX2.
 #[target_feature(enable = "avx2")]
 unsafe fn run_avx2<K: Kernel>(kernel: K) -> K::Output {
     kernel.run()
@@ -557,8 +598,10 @@ mod tests {
         let threads: Vec<usize> = cal.points.iter().map(|p| p.threads).collect();
         assert_eq!(threads, [1, 2]);
         for p in &cal.points {
-            for rate in [p.read_gbps, p.write_gbps, p.copy_gbps] {
-                assert!(rate.is_finite() && rate > 0.0, "{p:?}");
+            for r in [p.read, p.write, p.copy] {
+                let v = [r.q1_gbps, r.median_gbps, r.q3_gbps, r.best_gbps];
+                assert!(v.iter().all(|g| g.is_finite() && *g > 0.0), "{p:?}");
+                assert!(v.windows(2).all(|w| w[0] <= w[1]), "{p:?}");
             }
         }
         let expected: Vec<(usize, usize)> = (0..=6).map(|d| (d, 6)).collect();
@@ -573,11 +616,17 @@ mod tests {
     }
 
     fn sample() -> Calibration {
+        let rate = |g| Rate {
+            median_gbps: g,
+            q1_gbps: g,
+            q3_gbps: g,
+            best_gbps: g,
+        };
         let point = |threads, read_gbps| BandwidthPoint {
             threads,
-            read_gbps,
-            write_gbps: 1.0,
-            copy_gbps: 2.0,
+            read: rate(read_gbps),
+            write: rate(1.0),
+            copy: rate(2.0),
         };
         Calibration {
             format_version: FORMAT_VERSION,
@@ -594,20 +643,20 @@ mod tests {
         // A measured rate that serde_json's default fast float parser read back
         // one ulp off; the crate enables serde_json's float_roundtrip for this.
         let mut cal = sample();
-        cal.points[0].read_gbps = 22.854494674175754;
+        cal.points[0].read.median_gbps = 22.854494674175754;
         let back = Calibration::from_json(&cal.to_json().unwrap()).unwrap();
         assert_eq!(
-            back.points[0].read_gbps.to_bits(),
+            back.points[0].read.median_gbps.to_bits(),
             22.854494674175754f64.to_bits()
         );
     }
 
     #[test]
-    fn best_read_uses_matching_point_else_the_maximum() {
+    fn read_rate_uses_matching_point_else_the_maximum() {
         let cal = sample();
-        assert_eq!(cal.best_read_gbps(1), 10.0);
-        assert_eq!(cal.best_read_gbps(4), 25.0);
-        assert_eq!(cal.best_read_gbps(3), 30.0);
+        assert_eq!(cal.read_gbps(1), 10.0);
+        assert_eq!(cal.read_gbps(4), 25.0);
+        assert_eq!(cal.read_gbps(3), 30.0);
     }
 
     #[test]
@@ -634,7 +683,7 @@ mod tests {
 
     #[test]
     fn from_json_rejects_missing_fields_and_empty_points() {
-        let err = Calibration::from_json("{\"format_version\": 1}").unwrap_err();
+        let err = Calibration::from_json(&format!("{{\"format_version\": {FORMAT_VERSION}}}")).unwrap_err();
         assert!(err.to_string().contains("missing field"), "{err}");
         let mut empty = sample();
         empty.points.clear();

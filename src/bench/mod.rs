@@ -2,5 +2,7 @@
 //! benchmarks reported as a fraction of the calibrated bandwidth.
 
 pub mod calibrate;
+pub mod host;
+pub mod interleave;
 pub mod scan;
 pub mod stats;

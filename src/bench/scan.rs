@@ -1,10 +1,13 @@
 //! The scan benchmark: one `u32` column, a half-open range predicate, row-id output, timed
-//! at several thread counts and selectivities, reported against the host's calibrated
-//! streaming read bandwidth.
+//! at several thread counts and selectivities, interleaved with a streaming read of as
+//! many bytes (`bench::interleave`) and reported as a fraction of that read's bandwidth.
+//! A column that fits in the last-level cache is labelled so and gets no fraction.
 
 use serde::Serialize;
 
-use super::stats::{summarize, time_runs, Summary};
+use super::calibrate::CalibrationError;
+use super::interleave::{interleave, ReadReference};
+use super::stats::Summary;
 use crate::gen::{ColumnGen, Dist, Shape, Skew, TableGen};
 use crate::kernels::predicate;
 use crate::kernels::scan::{
@@ -27,9 +30,16 @@ pub struct ScanBenchParams {
     pub threads: Vec<usize>,
     /// Selectivities.
     pub selectivities: Vec<f64>,
-    /// Timed runs per point (after one warm-up).
+    /// Timed (reference, kernel) pairs per point, after one warm-up pair.
     pub runs: usize,
+    /// Size of the host's last-level cache, if known.
+    pub llc_bytes: Option<u64>,
 }
+
+/// A fraction of read above this is reported as a disturbed reference, not a result: a
+/// kernel that reads every byte cannot outrun a plain read of the same bytes by more than
+/// noise.
+pub const DISTURBED_ABOVE: f64 = 1.05;
 
 /// One measured point.
 #[derive(Debug, Clone, Serialize)]
@@ -42,15 +52,26 @@ pub struct ScanPoint {
     pub matches: u64,
     /// Input bytes consumed per run.
     pub bytes: u64,
-    /// Timing statistics.
+    /// Kernel timing statistics.
     #[serde(flatten)]
     pub time: Summary,
+    /// Reference (streaming read) timing statistics, interleaved with the kernel's.
+    pub read_time: Summary,
     /// Input consumed per second at the median time, in GB/s (10^9 bytes).
     pub gbps: f64,
-    /// Calibrated streaming read bandwidth at this thread count, GB/s.
+    /// The interleaved reference's read rate at its median time, GB/s.
     pub read_gbps: f64,
-    /// `gbps / read_gbps`.
-    pub fraction_of_read: f64,
+    /// Ratio of medians, reference time over kernel time: the kernel's fraction of the
+    /// read bandwidth. `None` when the column fits in the last-level cache.
+    pub fraction_of_read: Option<f64>,
+    /// First and third quartiles of the per-pair ratios.
+    pub fraction_q1: f64,
+    /// See `fraction_q1`.
+    pub fraction_q3: f64,
+    /// The fraction is above [`DISTURBED_ABOVE`]: the reference was disturbed.
+    pub disturbed: bool,
+    /// The column fits in the last-level cache, so it is not compared with memory.
+    pub in_cache: bool,
     /// Instruction set of the kernel.
     pub isa: &'static str,
 }
@@ -91,16 +112,18 @@ pub fn bench_params(table: &Table) -> ScanParams {
     }
 }
 
-/// Runs the benchmark; `read_gbps(threads)` gives the calibrated read bandwidth and
-/// `progress(done, total)` is called after each point. `table_for` receives each table
-/// once, after it is generated (for saving it).
+/// Runs the benchmark; `progress(done, total)` is called after each point. `table_for`
+/// receives each table once, after it is generated (for saving it). Fails only when the
+/// reference buffer cannot be allocated or a pool cannot start.
 pub fn bench_scan(
     p: &ScanBenchParams,
-    read_gbps: &dyn Fn(usize) -> f64,
     progress: &mut dyn FnMut(usize, usize),
     table_for: &mut dyn FnMut(f64, &Table),
-) -> Vec<ScanPoint> {
+) -> Result<Vec<ScanPoint>, CalibrationError> {
     let isa = Isa::detect();
+    let bytes = p.rows * 4;
+    let reference = ReadReference::new(bytes)?;
+    let in_cache = p.llc_bytes.is_some_and(|llc| bytes <= llc);
     let total = p.threads.len() * p.selectivities.len();
     let mut points = Vec::new();
     for &s in &p.selectivities {
@@ -112,36 +135,41 @@ pub fn bench_scan(
             let pool = rayon::ThreadPoolBuilder::new()
                 .num_threads(t)
                 .build()
-                .expect("thread pool");
+                .map_err(|e| CalibrationError::ThreadPool {
+                    threads: t,
+                    message: e.to_string(),
+                })?;
             let mut matches = 0;
             // The output buffer is reused across runs, as a caller scanning repeatedly
             // would; the warm-up run sizes it.
             let mut bufs = ScanBuffers::default();
-            let times = pool.install(|| {
-                time_runs(1, p.runs, || {
+            let m = pool.install(|| {
+                interleave(1, p.runs, &mut || reference.run(), &mut || {
                     let (count, _) = scan_partition_into(isa, &table, 0, &params, &io, &mut bufs);
                     matches = std::hint::black_box(count);
                 })
             });
-            let time = summarize(&times);
-            let bytes = p.rows * 4;
-            let gbps = bytes as f64 / time.median_s / 1e9;
-            let rb = read_gbps(t);
+            let ref_bytes = reference.bytes() as f64;
             points.push(ScanPoint {
                 threads: t,
                 selectivity: s,
                 matches,
                 bytes,
-                time,
-                gbps,
-                read_gbps: rb,
-                fraction_of_read: if rb > 0.0 { gbps / rb } else { 0.0 },
+                time: m.kernel,
+                read_time: m.reference,
+                gbps: bytes as f64 / m.kernel.median_s / 1e9,
+                read_gbps: ref_bytes / m.reference.median_s / 1e9,
+                fraction_of_read: (!in_cache).then_some(m.ratio),
+                fraction_q1: m.ratio_q1,
+                fraction_q3: m.ratio_q3,
+                disturbed: !in_cache && m.ratio > DISTURBED_ABOVE,
+                in_cache,
                 isa: isa.name(),
             });
             progress(points.len(), total);
         }
     }
-    points
+    Ok(points)
 }
 
 /// GB/s against selectivity, one line per thread count, with the calibrated read
@@ -199,10 +227,13 @@ pub fn chart(points: &[ScanPoint], rows: u64) -> Chart {
 
 /// The points as CSV.
 pub fn to_csv(points: &[ScanPoint]) -> String {
-    let mut s = String::from("threads,selectivity,matches,bytes,runs,median_s,min_s,max_s,gbps,read_gbps,fraction_of_read,isa\n");
+    let mut s = String::from("threads,selectivity,matches,bytes,runs,median_s,min_s,max_s,q1_s,q3_s,read_median_s,gbps,read_gbps,fraction_of_read,fraction_q1,fraction_q3,disturbed,in_cache,isa\n");
     for p in points {
+        let fraction = p
+            .fraction_of_read
+            .map_or(String::new(), |f| format!("{f:.3}"));
         s.push_str(&format!(
-            "{},{},{},{},{},{:.6},{:.6},{:.6},{:.3},{:.3},{:.3},{}\n",
+            "{},{},{},{},{},{:.6},{:.6},{:.6},{:.6},{:.6},{:.6},{:.3},{:.3},{},{:.3},{:.3},{},{},{}\n",
             p.threads,
             p.selectivity,
             p.matches,
@@ -211,9 +242,16 @@ pub fn to_csv(points: &[ScanPoint]) -> String {
             p.time.median_s,
             p.time.min_s,
             p.time.max_s,
+            p.time.q1_s,
+            p.time.q3_s,
+            p.read_time.median_s,
             p.gbps,
             p.read_gbps,
-            p.fraction_of_read,
+            fraction,
+            p.fraction_q1,
+            p.fraction_q3,
+            p.disturbed,
+            p.in_cache,
             p.isa
         ));
     }

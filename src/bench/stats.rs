@@ -1,4 +1,9 @@
-//! Timing statistics: repeated wall-clock runs of a closure and their summary.
+//! Timing statistics: repeated wall-clock runs of a closure and their summary (median,
+//! extremes, quartiles), and quantiles of any sample.
+//!
+//! Quartiles interpolate linearly between order statistics: the p-quantile of n sorted
+//! values sits at position p·(n−1), numpy's default `percentile` method (numpy docs,
+//! `numpy.percentile`, method "linear"). The interquartile range is Q3 − Q1.
 
 use serde::{Deserialize, Serialize};
 use std::time::Instant;
@@ -14,24 +19,52 @@ pub struct Summary {
     pub min_s: f64,
     /// Slowest timing.
     pub max_s: f64,
+    /// First quartile (see the module doc).
+    pub q1_s: f64,
+    /// Third quartile.
+    pub q3_s: f64,
+}
+
+impl Summary {
+    /// Interquartile range, `q3 - q1`.
+    pub fn iqr_s(&self) -> f64 {
+        self.q3_s - self.q1_s
+    }
+}
+
+/// The `p`-quantile (0 ≤ p ≤ 1) of `sorted` (ascending) by linear interpolation between
+/// order statistics; NaN for an empty slice.
+pub fn quantile(sorted: &[f64], p: f64) -> f64 {
+    match sorted.len() {
+        0 => f64::NAN,
+        n => {
+            let pos = p.clamp(0.0, 1.0) * (n - 1) as f64;
+            let (lo, frac) = (pos.floor() as usize, pos.fract());
+            let hi = (lo + 1).min(n - 1);
+            sorted[lo] + (sorted[hi] - sorted[lo]) * frac
+        }
+    }
+}
+
+/// `values` sorted ascending (NaN last), for [`quantile`].
+pub fn sorted(values: &[f64]) -> Vec<f64> {
+    let mut v = values.to_vec();
+    v.sort_by(f64::total_cmp);
+    v
 }
 
 /// Summarises `times_s`. An empty slice gives `runs == 0` and NaN statistics, so
 /// a caller that forgot to time anything cannot mistake the result for a real figure.
 pub fn summarize(times_s: &[f64]) -> Summary {
-    let mut sorted = times_s.to_vec();
-    sorted.sort_by(f64::total_cmp);
-    let n = sorted.len();
-    let median_s = match n {
-        0 => f64::NAN,
-        _ if n % 2 == 1 => sorted[n / 2],
-        _ => (sorted[n / 2 - 1] + sorted[n / 2]) / 2.0,
-    };
+    let sorted = sorted(times_s);
     Summary {
-        runs: n,
-        median_s,
+        runs: sorted.len(),
+        // The 0.5-quantile is the middle value, or the mean of the middle two.
+        median_s: quantile(&sorted, 0.5),
         min_s: sorted.first().copied().unwrap_or(f64::NAN),
         max_s: sorted.last().copied().unwrap_or(f64::NAN),
+        q1_s: quantile(&sorted, 0.25),
+        q3_s: quantile(&sorted, 0.75),
     }
 }
 
@@ -65,7 +98,10 @@ mod tests {
                 runs: 3,
                 median_s: 2.0,
                 min_s: 1.0,
-                max_s: 5.0
+                max_s: 5.0,
+                // Positions 0.5 and 1.5: 1 + 0.5·(2−1) = 1.5 and 2 + 0.5·(5−2) = 3.5.
+                q1_s: 1.5,
+                q3_s: 3.5,
             }
         );
     }
@@ -94,6 +130,23 @@ mod tests {
         let s = summarize(&[]);
         assert_eq!(s.runs, 0);
         assert!(s.median_s.is_nan() && s.min_s.is_nan() && s.max_s.is_nan());
+        assert!(s.q1_s.is_nan() && s.q3_s.is_nan());
+    }
+
+    #[test]
+    fn quartiles_match_numpy_linear_percentiles() {
+        // numpy.percentile([1, 2, 3, 4, 5, 6, 7, 8, 9, 10], [25, 75]) = [3.25, 7.75]
+        // (linear method: positions 2.25 and 6.75); worked by hand from the numpy docs.
+        let v: Vec<f64> = (1..=10).map(f64::from).collect();
+        let s = summarize(&v);
+        assert_eq!((s.q1_s, s.median_s, s.q3_s), (3.25, 5.5, 7.75));
+        assert_eq!(s.iqr_s(), 4.5);
+        // Order does not matter; one value is every quantile of itself.
+        let mut r = v.clone();
+        r.reverse();
+        assert_eq!(summarize(&r), s);
+        assert_eq!(quantile(&[7.0], 0.25), 7.0);
+        assert!(quantile(&[], 0.5).is_nan());
     }
 
     #[test]

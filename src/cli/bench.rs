@@ -26,7 +26,20 @@ fn parse_bytes(s: &str) -> Result<u64> {
 }
 
 fn all_threads() -> usize {
-    std::thread::available_parallelism().map_or(1, |n| n.get())
+    weir::bench::host::threads()
+}
+
+/// Refuses thread counts above the host's: they would time the same cores and label the
+/// result with a count that never ran in parallel.
+fn check_threads(flag: &str, threads: &[usize]) -> Result<()> {
+    let host = all_threads();
+    match threads.iter().find(|&&t| t > host) {
+        Some(t) => Err(Error::input(format!(
+            "{flag} {t}: this host runs {host} hardware thread{}; ask for at most {host}",
+            if host == 1 { "" } else { "s" }
+        ))),
+        None => Ok(()),
+    }
 }
 
 fn run_calibration(params: &CalibrationParams) -> Result<Calibration> {
@@ -41,13 +54,27 @@ fn run_calibration(params: &CalibrationParams) -> Result<Calibration> {
 }
 
 fn calibration_table(cal: &Calibration) -> String {
-    let mut t = TextTable::new(&["threads", "read GB/s", "write GB/s", "copy GB/s"]);
+    let mut t = TextTable::new(&[
+        "threads",
+        "read GB/s",
+        "read IQR",
+        "write GB/s",
+        "write IQR",
+        "copy GB/s",
+        "copy IQR",
+        "best read",
+    ]);
+    let iqr = |r: &weir::bench::calibrate::Rate| format!("{:.2}–{:.2}", r.q1_gbps, r.q3_gbps);
     for p in &cal.points {
         t.row(vec![
             p.threads.to_string(),
-            format!("{:.2}", p.read_gbps),
-            format!("{:.2}", p.write_gbps),
-            format!("{:.2}", p.copy_gbps),
+            format!("{:.2}", p.read.median_gbps),
+            iqr(&p.read),
+            format!("{:.2}", p.write.median_gbps),
+            iqr(&p.write),
+            format!("{:.2}", p.copy.median_gbps),
+            iqr(&p.copy),
+            format!("{:.2}", p.read.best_gbps),
         ]);
     }
     t.render()
@@ -63,6 +90,9 @@ pub fn calibrate(a: CalibrateArgs) -> Result<Outcome> {
             )));
         }
     }
+    if let Some(t) = a.threads {
+        check_threads("--threads", &[t])?;
+    }
     let params = CalibrationParams {
         max_threads: a.threads.unwrap_or_else(all_threads),
         bytes: parse_bytes(&a.bytes)?,
@@ -70,7 +100,7 @@ pub fn calibrate(a: CalibrateArgs) -> Result<Outcome> {
     };
     let cal = run_calibration(&params)?;
     say!(
-        "streaming bandwidth over {} MiB buffers, best of {} runs ({}; {})",
+        "streaming bandwidth over {} MiB buffers, median and interquartile range of {} runs after a warm-up ({}; {})",
         cal.bytes >> 20,
         cal.runs,
         cal.isa,
@@ -106,6 +136,7 @@ fn bench_scan(a: BenchScanArgs) -> Result<Outcome> {
             "--threads, --runs and --rows must be at least 1",
         ));
     }
+    check_threads("--threads", &threads)?;
     if let Some(s) = a.selectivity.iter().find(|s| !(0.0..=1.0).contains(*s)) {
         return Err(Error::input(format!(
             "--selectivity {s}: must be within 0..=1"
@@ -122,33 +153,25 @@ fn bench_scan(a: BenchScanArgs) -> Result<Outcome> {
             p.display()
         )));
     }
+    // A saved calibration is kept in the JSON for context only: the fraction comes from
+    // the read reference interleaved with the scan's own runs.
     let cal = match &a.calibration {
         Some(path) => {
             let text = std::fs::read_to_string(path).map_err(|e| Error::read(path, e))?;
-            Calibration::from_json(&text)
-                .map_err(|e| Error::input(format!("{}: {e}", path.display())))?
+            Some(
+                Calibration::from_json(&text)
+                    .map_err(|e| Error::input(format!("{}: {e}", path.display())))?,
+            )
         }
-        None => {
-            let max = threads.iter().copied().max().unwrap_or(1);
-            // The same buffer size as `weir calibrate`: a short buffer or few runs read
-            // low on a host whose bandwidth wanders.
-            let params = CalibrationParams {
-                max_threads: max,
-                ..CalibrationParams::default()
-            };
-            eprintln!(
-                "no --calibration given: measuring read bandwidth now ({} MiB, best of {} runs)",
-                params.bytes >> 20,
-                params.runs
-            );
-            run_calibration(&params)?
-        }
+        None => None,
     };
+    let llc = weir::bench::host::llc_bytes();
     let params = ScanBenchParams {
         rows: a.rows,
         threads,
         selectivities: a.selectivity.clone(),
         runs: a.runs,
+        llc_bytes: llc,
     };
     let pb = super::progress(
         (params.threads.len() * params.selectivities.len()) as u64,
@@ -157,7 +180,6 @@ fn bench_scan(a: BenchScanArgs) -> Result<Outcome> {
     let mut save_err = None;
     let points = scan_bench::bench_scan(
         &params,
-        &|t| cal.best_read_gbps(t),
         &mut |done, _| pb.set_position(done as u64),
         &mut |s, table| {
             if let Some(p) = &a.save_npy {
@@ -178,19 +200,26 @@ fn bench_scan(a: BenchScanArgs) -> Result<Outcome> {
                 }
             }
         },
-    );
+    )
+    .map_err(|e| Error::input(format!("scan bench: {e}")))?;
     pb.finish_and_clear();
     if let Some(e) = save_err {
         return Err(e);
     }
     say!(
-        "scan of {} u32 rows ({} MiB), predicate v >= {} and v < {}, row-id output, {} runs after a warm-up",
+        "scan of {} u32 rows ({} MiB), predicate v >= {} and v < {}, row-id output; {} runs after a warm-up, each after a streaming read of as many bytes",
         a.rows,
         (a.rows * 4) >> 20,
         scan_bench::LO,
         scan_bench::HI,
         a.runs
     );
+    let llc_text = llc.map_or("unknown".to_string(), |b| format!("{} MiB", b >> 20));
+    if points.iter().any(|p| p.in_cache) {
+        say!("the column fits in the last-level cache ({llc_text}): cache speed, not compared with memory");
+    } else {
+        say!("last-level cache {llc_text}; of read = ratio of median times (read / scan), IQR of the per-pair ratios");
+    }
     let mut t = TextTable::new(&[
         "threads",
         "selectivity",
@@ -201,6 +230,7 @@ fn bench_scan(a: BenchScanArgs) -> Result<Outcome> {
         "GB/s",
         "read GB/s",
         "of read",
+        "IQR",
         "isa",
     ]);
     for p in &points {
@@ -213,11 +243,22 @@ fn bench_scan(a: BenchScanArgs) -> Result<Outcome> {
             format!("{:.2}", p.time.max_s * 1e3),
             format!("{:.2}", p.gbps),
             format!("{:.2}", p.read_gbps),
-            format!("{:.0}%", p.fraction_of_read * 100.0),
+            match p.fraction_of_read {
+                None => "in LLC".to_string(),
+                Some(f) if p.disturbed => format!("{:.0}% !", f * 100.0),
+                Some(f) => format!("{:.0}%", f * 100.0),
+            },
+            format!("{:.0}–{:.0}%", p.fraction_q1 * 100.0, p.fraction_q3 * 100.0),
             p.isa.to_string(),
         ]);
     }
     say!("{}", t.render().trim_end());
+    if points.iter().any(|p| p.disturbed) {
+        say!(
+            "! above {:.0}% of read: the read reference was disturbed (other work on the host), not outrun",
+            scan_bench::DISTURBED_ABOVE * 100.0
+        );
+    }
     if let Some(prefix) = &a.out {
         write_file_atomic(
             &prefix.with_extension("csv"),

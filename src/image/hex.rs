@@ -6,9 +6,56 @@ use std::io::Write;
 
 use super::{check_word_bytes, words_for, ImageError};
 
-/// Buffered output is flushed to the writer once it holds this many bytes, so an unbuffered
-/// writer is not called once per line.
-const FLUSH_AT: usize = 1 << 16;
+/// Payload bytes formatted per write: the text (a little over twice as long) goes to the
+/// writer in one call, large enough that a buffered writer passes it straight through
+/// instead of copying it into its own buffer.
+const BLOCK_BYTES: usize = 1 << 20;
+
+/// Two lowercase hex digits of each byte value, most-significant first.
+const DIGITS: [[u8; 2]; 256] = {
+    let hex = b"0123456789abcdef";
+    let mut t = [[0u8; 2]; 256];
+    let mut b = 0;
+    while b < 256 {
+        t[b] = [hex[b >> 4], hex[b & 0xf]];
+        b += 1;
+    }
+    t
+};
+
+/// Appends `bytes` to `out` as hex lines of `word_bytes`-byte words (the format of
+/// [`write_hex`], without segment lines); a short last word is zero-padded. Callers may
+/// format disjoint word-aligned pieces in parallel and join them in order: the text of a
+/// concatenation is the concatenation of the texts. `word_bytes` must be at least 1.
+pub fn encode_hex_into(out: &mut Vec<u8>, word_bytes: usize, bytes: &[u8]) {
+    let line = 2 * word_bytes + 1;
+    let start = out.len();
+    out.resize(start + bytes.len().div_ceil(word_bytes) * line, 0);
+    let text = &mut out[start..];
+    let (whole, rest) = bytes.split_at(bytes.len() / word_bytes * word_bytes);
+    for (o, w) in text
+        .chunks_exact_mut(line)
+        .zip(whole.chunks_exact(word_bytes))
+    {
+        encode_word(o, w);
+    }
+    if !rest.is_empty() {
+        let mut padded = [0u8; super::MAX_WORD_BYTES];
+        padded[..rest.len()].copy_from_slice(rest);
+        let last = text.len() - line;
+        encode_word(&mut text[last..], &padded[..word_bytes]);
+    }
+}
+
+/// One line: the digits of `word` from its last byte to its first, then LF.
+#[inline(always)]
+fn encode_word(line: &mut [u8], word: &[u8]) {
+    let (digits, lf) = line.split_at_mut(2 * word.len());
+    for (d, &b) in digits.chunks_exact_mut(2).zip(word.iter().rev()) {
+        d.copy_from_slice(&DIGITS[usize::from(b)]);
+    }
+    lf[0] = b'\n';
+}
 
 /// One region of a per-channel hex image.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -89,10 +136,7 @@ struct Lines<'w, W: Write> {
 
 impl<'w, W: Write> Lines<'w, W> {
     fn new(w: &'w mut W) -> Self {
-        Lines {
-            w,
-            buf: Vec::with_capacity(FLUSH_AT + 2 * super::MAX_WORD_BYTES + 1),
-        }
+        Lines { w, buf: Vec::new() }
     }
 
     fn text(&mut self, text: &str) -> std::io::Result<()> {
@@ -102,21 +146,16 @@ impl<'w, W: Write> Lines<'w, W> {
 
     /// One line per word; bytes missing from a short last word print as `00`.
     fn words(&mut self, word_bytes: usize, bytes: &[u8]) -> std::io::Result<()> {
-        const DIGITS: &[u8; 16] = b"0123456789abcdef";
-        for word in bytes.chunks(word_bytes) {
-            for i in (0..word_bytes).rev() {
-                let b = word.get(i).copied().unwrap_or(0);
-                self.buf.push(DIGITS[usize::from(b >> 4)]);
-                self.buf.push(DIGITS[usize::from(b & 0xf)]);
-            }
-            self.buf.push(b'\n');
+        let block = (BLOCK_BYTES / word_bytes).max(1) * word_bytes;
+        for piece in bytes.chunks(block) {
+            encode_hex_into(&mut self.buf, word_bytes, piece);
             self.spill()?;
         }
         Ok(())
     }
 
     fn spill(&mut self) -> std::io::Result<()> {
-        if self.buf.len() >= FLUSH_AT {
+        if self.buf.len() >= BLOCK_BYTES {
             self.w.write_all(&self.buf)?;
             self.buf.clear();
         }
@@ -160,6 +199,26 @@ mod tests {
             assert!(line.starts_with("fffefdfc") && line.ends_with("03020100"));
             // Digits 510..514 are bytes 256 (0x00) and 255 (0xff).
             assert_eq!(&line[510..514], "00ff");
+        }
+    }
+
+    #[test]
+    fn table_encoder_matches_formatted_digits_for_every_width_and_length() {
+        // The reference is the standard library's `{:02x}` formatting, word by word.
+        let bytes: Vec<u8> = (0..2000u32).map(|i| (i * 37 % 256) as u8).collect();
+        for word_bytes in [1, 2, 3, 4, 8, 64, 512] {
+            for len in [0, 1, word_bytes - 1, word_bytes, 3 * word_bytes + 1, 700] {
+                let mut got = b"keep".to_vec();
+                encode_hex_into(&mut got, word_bytes, &bytes[..len]);
+                let mut want = "keep".to_string();
+                for w in bytes[..len].chunks(word_bytes) {
+                    for i in (0..word_bytes).rev() {
+                        want += &format!("{:02x}", w.get(i).copied().unwrap_or(0));
+                    }
+                    want.push('\n');
+                }
+                assert_eq!(String::from_utf8(got).unwrap(), want, "{word_bytes} {len}");
+            }
         }
     }
 

@@ -17,7 +17,7 @@ mod hex_read;
 mod npy_words;
 
 pub use bin::{read_bin, write_bin};
-pub use hex::{write_hex, write_hex_segments, Segment};
+pub use hex::{encode_hex_into, write_hex, write_hex_segments, Segment};
 pub use hex_read::{read_hex, HexProblem};
 pub use npy_words::{read_npy_words, write_npy_words};
 

@@ -2,6 +2,7 @@
 //! tables, layout and the ledger, never file formats or the terminal. Each kernel plugs
 //! into the runner through the seam in [`seam`]; [`KernelConfig`] is the one list of them.
 
+pub mod isa;
 pub mod predicate;
 pub mod scan;
 pub mod seam;

@@ -1,6 +1,6 @@
 //! AVX-512 leaf tests: compares straight into mask registers (`vpcmp*` / `vcmpp*`), one
 //! 64-row mask word from 1 to 8 vector compares. Only compiled for x86-64 and only called
-//! after run-time detection of AVX-512 F and BW.
+//! with an AVX-512 `Isa`, which run-time detection alone creates.
 //!
 //! Predicate semantics are those of the portable loops: integer `between` is one unsigned
 //! compare of `x - lo` against `hi - lo`; float compares are *ordered* (false on NaN)
@@ -65,13 +65,17 @@ macro_rules! visit_cmp {
             c: Self,
             sink: &mut S,
         ) -> usize {
-            match op {
-                CmpOp::Eq => visit(xs, |p| Self::cmp_mask::<$eq>(p, c), sink),
-                CmpOp::Lt => visit(xs, |p| Self::cmp_mask::<$lt>(p, c), sink),
-                CmpOp::Le => visit(xs, |p| Self::cmp_mask::<$le>(p, c), sink),
-                CmpOp::Ne => visit(xs, |p| Self::cmp_mask::<$ne>(p, c), sink),
-                CmpOp::Ge => visit(xs, |p| Self::cmp_mask::<$ge>(p, c), sink),
-                CmpOp::Gt => visit(xs, |p| Self::cmp_mask::<$gt>(p, c), sink),
+            // SAFETY (every arm): `visit` hands each closure a pointer to a whole
+            // vector of `xs`, and the caller guarantees the CPU features.
+            unsafe {
+                match op {
+                    CmpOp::Eq => visit(xs, |p| Self::cmp_mask::<$eq>(p, c), sink),
+                    CmpOp::Lt => visit(xs, |p| Self::cmp_mask::<$lt>(p, c), sink),
+                    CmpOp::Le => visit(xs, |p| Self::cmp_mask::<$le>(p, c), sink),
+                    CmpOp::Ne => visit(xs, |p| Self::cmp_mask::<$ne>(p, c), sink),
+                    CmpOp::Ge => visit(xs, |p| Self::cmp_mask::<$ge>(p, c), sink),
+                    CmpOp::Gt => visit(xs, |p| Self::cmp_mask::<$gt>(p, c), sink),
+                }
             }
         }
     };
@@ -83,15 +87,22 @@ macro_rules! int_lane {
             const LANES: usize = $lanes;
             #[inline(always)]
             unsafe fn cmp_mask<const IMM: i32>(p: *const Self, c: Self) -> u64 {
-                let v = _mm512_loadu_si512(p as *const _);
-                u64::from($cmp::<IMM>(v, $set1(c as $as)))
+                // SAFETY: the caller guarantees 64 readable bytes at `p` (unaligned loads
+                // are allowed) and AVX-512 F+BW.
+                unsafe {
+                    let v = _mm512_loadu_si512(p as *const _);
+                    u64::from($cmp::<IMM>(v, $set1(c as $as)))
+                }
             }
             #[inline(always)]
             unsafe fn between_mask(p: *const Self, lo: Self, hi: Self) -> u64 {
-                let v = _mm512_loadu_si512(p as *const _);
-                let d = $sub(v, $set1(lo as $as));
-                let span = $set1(hi.wrapping_sub(lo) as $as);
-                u64::from($cmpu::<LE>(d, span)) * u64::from(lo <= hi)
+                // SAFETY: as in `cmp_mask`.
+                unsafe {
+                    let v = _mm512_loadu_si512(p as *const _);
+                    let d = $sub(v, $set1(lo as $as));
+                    let span = $set1(hi.wrapping_sub(lo) as $as);
+                    u64::from($cmpu::<LE>(d, span)) * u64::from(lo <= hi)
+                }
             }
             visit_cmp!(EQ, LT, LE, NE, GE, GT);
         }
@@ -177,12 +188,16 @@ macro_rules! float_lane {
             const LANES: usize = $lanes;
             #[inline(always)]
             unsafe fn cmp_mask<const IMM: i32>(p: *const Self, c: Self) -> u64 {
-                u64::from($cmp::<IMM>($load(p), $set1(c)))
+                // SAFETY: the caller guarantees 64 readable bytes at `p` and AVX-512 F.
+                unsafe { u64::from($cmp::<IMM>($load(p), $set1(c))) }
             }
             #[inline(always)]
             unsafe fn between_mask(p: *const Self, lo: Self, hi: Self) -> u64 {
-                let v = $load(p);
-                u64::from($cmp::<F_GE>(v, $set1(lo)) & $cmp::<F_LE>(v, $set1(hi)))
+                // SAFETY: as in `cmp_mask`.
+                unsafe {
+                    let v = $load(p);
+                    u64::from($cmp::<F_GE>(v, $set1(lo)) & $cmp::<F_LE>(v, $set1(hi)))
+                }
             }
             visit_cmp!(F_EQ, F_LT, F_LE, F_NE, F_GE, F_GT);
         }
@@ -193,12 +208,16 @@ float_lane!(f32, 16, _mm512_set1_ps, _mm512_loadu_ps, _mm512_cmp_ps_mask);
 float_lane!(f64, 8, _mm512_set1_pd, _mm512_loadu_pd, _mm512_cmp_pd_mask);
 
 /// One 64-row mask word from `64 / LANES` vector compares.
+///
+/// # Safety
+/// `p` must point to 64 readable values; `f` must be sound on each vector of them.
 #[inline(always)]
 unsafe fn word<T: Avx512Lane>(p: *const T, f: &impl Fn(*const T) -> u64) -> u64 {
     let mut w = 0u64;
     let mut k = 0;
     while k < 64 {
-        w |= f(p.add(k)) << k;
+        // SAFETY: `k < 64`, so `p + k` stays within the 64 values the caller vouches for.
+        w |= f(unsafe { p.add(k) }) << k;
         k += T::LANES;
     }
     w
@@ -217,6 +236,9 @@ const PREFETCH_BYTES: usize = 2048;
 /// [`STREAMS`] equal runs walked in step (buckets `0..STREAMS`), then the remainder
 /// (bucket `STREAMS`); within a bucket words ascend, and the buckets in order cover the
 /// words in order, so a sink that keeps one output per bucket can join them in row order.
+///
+/// # Safety
+/// `f` must be sound on a pointer to any whole vector of `xs` (it is only given those).
 #[inline(always)]
 unsafe fn visit<T: Avx512Lane, S: FnMut(usize, usize, u64)>(
     xs: &[T],
@@ -230,18 +252,23 @@ unsafe fn visit<T: Avx512Lane, S: FnMut(usize, usize, u64)>(
     for b in 0..q {
         for k in 0..STREAMS {
             let i = k * q + b;
-            let at = p.add(i * 64);
+            // SAFETY: `i < blocks`, so rows `64i..64i+64` are inside `xs`.
+            let at = unsafe { p.add(i * 64) };
             let ahead = (at as *const u8).wrapping_add(PREFETCH_BYTES);
             let mut line = 0;
             while PREFETCH_BYTES > 0 && line < word_bytes {
-                _mm_prefetch::<_MM_HINT_T0>(ahead.wrapping_add(line) as *const i8);
+                // SAFETY: a prefetch never faults, whatever the address (SSE is part of
+                // the x86-64 baseline).
+                unsafe { _mm_prefetch::<_MM_HINT_T0>(ahead.wrapping_add(line) as *const i8) };
                 line += 64;
             }
-            sink(k, i, word(at, &f));
+            // SAFETY: `at` starts 64 rows inside `xs`; `f` is sound on them (caller).
+            sink(k, i, unsafe { word(at, &f) });
         }
     }
     for i in q * STREAMS..blocks {
-        sink(STREAMS, i, word(p.add(i * 64), &f));
+        // SAFETY: as above, `i < blocks`.
+        sink(STREAMS, i, unsafe { word(p.add(i * 64), &f) });
     }
     blocks * 64
 }
@@ -249,27 +276,31 @@ unsafe fn visit<T: Avx512Lane, S: FnMut(usize, usize, u64)>(
 /// Visits `test` on the whole 64-row words of `xs` (see [`visit`]); returns the rows done.
 ///
 /// # Safety
-/// The CPU must support AVX-512 F and BW.
+/// The CPU must support every feature enabled below (an AVX-512 `Isa` proves it).
 #[target_feature(enable = "avx512f,avx512bw,avx512vl,bmi1,bmi2,popcnt")]
 pub unsafe fn leaf<T: Avx512Lane, S: FnMut(usize, usize, u64)>(
     xs: &[T],
     test: &Test,
     sink: &mut S,
 ) -> usize {
-    match test {
-        Test::Cmp(op, s) => T::visit_cmp(xs, *op, T::from_scalar(s), sink),
-        Test::Between(lo, hi) => {
-            let (lo, hi) = (T::from_scalar(lo), T::from_scalar(hi));
-            visit(xs, |p| T::between_mask(p, lo, hi), sink)
-        }
-        Test::In(list) => {
-            let list: Vec<T> = list.iter().map(T::from_scalar).collect();
-            // Equality is predicate 0 for both integer and float compares.
-            visit(
-                xs,
-                |p| list.iter().fold(0, |m, &c| m | T::cmp_mask::<EQ>(p, c)),
-                sink,
-            )
+    // SAFETY (whole body): the caller guarantees the features; `visit` gives the mask
+    // closures only pointers to whole vectors of `xs`.
+    unsafe {
+        match test {
+            Test::Cmp(op, s) => T::visit_cmp(xs, *op, T::from_scalar(s), sink),
+            Test::Between(lo, hi) => {
+                let (lo, hi) = (T::from_scalar(lo), T::from_scalar(hi));
+                visit(xs, |p| T::between_mask(p, lo, hi), sink)
+            }
+            Test::In(list) => {
+                let list: Vec<T> = list.iter().map(T::from_scalar).collect();
+                // Equality is predicate 0 for both integer and float compares.
+                visit(
+                    xs,
+                    |p| list.iter().fold(0, |m, &c| m | T::cmp_mask::<EQ>(p, c)),
+                    sink,
+                )
+            }
         }
     }
 }

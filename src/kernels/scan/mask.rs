@@ -8,44 +8,8 @@
 use crate::kernels::predicate::{Bound, CmpOp, Scalar, Test};
 use crate::table::Table;
 
-/// The instruction set the mask loops run with.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum Isa {
-    /// x86-64 with AVX-512 F/BW/VL.
-    Avx512,
-    /// x86-64 with AVX2.
-    Avx2,
-    /// Whatever the build targets.
-    Portable,
-}
-
-impl Isa {
-    /// The widest instruction set this CPU supports.
-    pub fn detect() -> Isa {
-        #[cfg(target_arch = "x86_64")]
-        {
-            if std::is_x86_feature_detected!("avx512f")
-                && std::is_x86_feature_detected!("avx512bw")
-                && std::is_x86_feature_detected!("avx512vl")
-            {
-                return Isa::Avx512;
-            }
-            if std::is_x86_feature_detected!("avx2") {
-                return Isa::Avx2;
-            }
-        }
-        Isa::Portable
-    }
-
-    /// Name for reports.
-    pub fn name(self) -> &'static str {
-        match self {
-            Isa::Avx512 => "avx512",
-            Isa::Avx2 => "avx2",
-            Isa::Portable => "portable",
-        }
-    }
-}
+pub use crate::kernels::isa::Isa;
+use crate::kernels::isa::Level;
 
 /// A Rust element type the mask loops can compare, with the conversion of a bound scalar.
 pub trait Lane: Copy + PartialOrd + Send + Sync {
@@ -168,9 +132,11 @@ fn leaf_body<T: Lane>(xs: &[T], test: &Test, out: &mut [u64]) {
     }
 }
 
+/// # Safety
+/// The CPU must support AVX2, BMI1, BMI2 and POPCNT (an AVX2 [`Isa`] proves it).
 #[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2,popcnt,bmi1,bmi2")]
-fn leaf_avx2<T: Lane>(xs: &[T], test: &Test, out: &mut [u64]) {
+#[target_feature(enable = "avx2,bmi1,bmi2,popcnt")]
+unsafe fn leaf_avx2<T: Lane>(xs: &[T], test: &Test, out: &mut [u64]) {
     leaf_body(xs, test, out)
 }
 
@@ -208,8 +174,9 @@ fn tail_word<T: Lane>(xs: &[T], done: usize, test: &Test) -> u64 {
 /// joined in order cover the words in order).
 fn leaf_visit<T: Simd, S: FnMut(usize, usize, u64)>(isa: Isa, xs: &[T], test: &Test, sink: &mut S) {
     #[cfg(target_arch = "x86_64")]
-    if isa == Isa::Avx512 {
-        // SAFETY: `Isa::Avx512` is only produced by `detect` after checking the features.
+    if isa.level() == Level::Avx512 {
+        // SAFETY: an AVX-512 `Isa` exists only after run-time detection of every feature
+        // `avx512::leaf` enables (see `kernels::isa`).
         let done = unsafe { super::avx512::leaf(xs, test, sink) };
         if done < xs.len() {
             sink(BUCKETS - 1, done / 64, tail_word(xs, done, test));
@@ -224,13 +191,14 @@ fn leaf_visit<T: Simd, S: FnMut(usize, usize, u64)>(isa: Isa, xs: &[T], test: &T
 }
 
 fn leaf<T: Simd>(isa: Isa, xs: &[T], test: &Test, out: &mut [u64]) {
-    match isa {
+    match isa.level() {
         #[cfg(target_arch = "x86_64")]
-        Isa::Avx512 => leaf_visit(isa, xs, test, &mut |_, i, m| out[i] = m),
+        Level::Avx512 => leaf_visit(isa, xs, test, &mut |_, i, m| out[i] = m),
         #[cfg(target_arch = "x86_64")]
-        // SAFETY: `Isa::Avx2` is only produced by `detect` after checking the feature.
-        Isa::Avx2 => unsafe { leaf_avx2(xs, test, out) },
-        _ => leaf_portable(xs, test, out),
+        // SAFETY: an AVX2 `Isa` exists only after run-time detection of AVX2, BMI1, BMI2
+        // and POPCNT, the features `leaf_avx2` enables (see `kernels::isa`).
+        Level::Avx2 => unsafe { leaf_avx2(xs, test, out) },
+        Level::Portable => leaf_portable(xs, test, out),
     }
 }
 
@@ -248,7 +216,8 @@ pub fn visit<S: FnMut(usize, usize, u64)>(
     scratch: &mut Scratch,
     sink: &mut S,
 ) {
-    if let (Bound::Leaf { col, test }, Isa::Avx512) = (pred, isa) {
+    #[cfg(target_arch = "x86_64")]
+    if let (Bound::Leaf { col, test }, Level::Avx512) = (pred, isa.level()) {
         let r = rows;
         return crate::with_column_data!(&table.columns[*col].data, v => leaf_visit(isa, &v[r], test, sink));
     }

@@ -16,10 +16,12 @@
 
 #[cfg(target_arch = "x86_64")]
 mod avx512;
+mod compact;
 mod mask;
 mod plan;
 
-pub use mask::{for_each_match, Isa};
+pub use crate::kernels::isa::Isa;
+pub use mask::for_each_match;
 pub use plan::{ScanConfig, ScanKernel};
 
 use rayon::prelude::*;
@@ -248,11 +250,22 @@ fn scan_chunk(
             visit_matches(isa, table, params, r, masks, scratch, buckets, put)
         }
         ScanOutput::RowIds => {
-            // The job chooses u32 ids only when every row id fits.
-            let put = |out: &mut Vec<u8>, row: usize| {
-                out.extend_from_slice(&((base + row as u64) as u32).to_le_bytes())
-            };
-            visit_matches(isa, table, params, r, masks, scratch, buckets, put)
+            // The job chooses u32 ids only when every row id fits (and a chunk is whole
+            // mask words, so the last word's ids fit too).
+            let mut count = 0u64;
+            mask::visit(
+                isa,
+                &params.predicate,
+                table,
+                r,
+                masks,
+                scratch,
+                &mut |k, i, m| {
+                    count += u64::from(m.count_ones());
+                    compact::push_ids_u32(&mut buckets[k], (base + 64 * i as u64) as u32, m);
+                },
+            );
+            count
         }
         ScanOutput::Project(cols) => {
             let start = r.start;
@@ -463,7 +476,7 @@ mod tests {
             for t in [&big, &small, &big] {
                 let (count, ledger) =
                     scan_partition_into(Isa::detect(), t, 5, &params, &io, &mut bufs);
-                let fresh = scan_partition(Isa::Portable, t, 5, &params, &io);
+                let fresh = scan_partition(Isa::portable(), t, 5, &params, &io);
                 assert_eq!(
                     (count, &ledger, &bufs.out),
                     (fresh.count, &fresh.ledger, &fresh.out)
