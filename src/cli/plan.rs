@@ -61,7 +61,9 @@ fn next_busiest(p: &weir::memsys::model::PhasePlan) -> String {
         .iter()
         .filter(|u| u.resource != p.bottleneck)
         .max_by(|a, b| a.utilisation.total_cmp(&b.utilisation))
-        .map_or("-".into(), |u| format!("{} {:.0}%", u.resource, u.utilisation * 100.0))
+        .map_or("-".into(), |u| {
+            format!("{} {:.0}%", u.resource, u.utilisation * 100.0)
+        })
 }
 
 fn plan_table(plan: &Plan) -> String {
