@@ -17,9 +17,11 @@ pub mod layout;
 pub mod ledger;
 pub mod manifest;
 pub mod memmap;
+pub mod memsys;
 pub mod npy;
 pub mod plot;
 pub mod report;
 pub mod table;
+pub mod tables;
 
 pub use error::{Error, ErrorKind, Result};

@@ -30,6 +30,10 @@ pub enum Command {
     Bench(BenchArgs),
     /// Run the built-in wind-farm demo end to end.
     Demo(DemoArgs),
+    /// Predict a run's device time from its ledger: bottleneck, per phase and in total.
+    Plan(PlanArgs),
+    /// Write a run's self-contained HTML report (ledger chart, plan, figures).
+    Report(ReportArgs),
 }
 
 /// `weir run`.
@@ -199,4 +203,30 @@ pub struct DemoArgs {
     /// Replace an existing output directory.
     #[arg(long)]
     pub force: bool,
+}
+
+/// `weir plan`.
+#[derive(Debug, Args)]
+pub struct PlanArgs {
+    /// A run's output directory (holding ledger.json).
+    pub run_dir: PathBuf,
+    /// A device preset (hbm2x2, ddr4x2) or a device description TOML file.
+    #[arg(long)]
+    pub device: String,
+    /// Re-map each engine's channel: spread, packed, or a file listing one channel per engine.
+    #[arg(long)]
+    pub placement: Option<String>,
+    /// A `weir bench` JSON result as the host baseline (default: the run's timing.json).
+    #[arg(long)]
+    pub bench: Option<PathBuf>,
+    /// A device's own counters (CSV) to set beside the prediction and the golden ledger.
+    #[arg(long, value_name = "COUNTERS.csv")]
+    pub measured: Option<PathBuf>,
+}
+
+/// `weir report`.
+#[derive(Debug, Args)]
+pub struct ReportArgs {
+    /// A run's output directory (holding ledger.json; plan.json and *.svg when present).
+    pub run_dir: PathBuf,
 }

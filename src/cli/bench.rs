@@ -2,7 +2,7 @@
 
 use weir::bench::calibrate::{calibrate as measure, Calibration, CalibrationParams};
 use weir::bench::scan::{self as scan_bench, ScanBenchParams};
-use weir::report::TextTable;
+use weir::tables::TextTable;
 use weir::{Error, Result};
 
 use super::args::{BenchArgs, BenchKind, BenchScanArgs, CalibrateArgs};

@@ -2,7 +2,7 @@
 
 use weir::check::{self, CheckOptions};
 use weir::manifest::Manifest;
-use weir::report::{human_bytes, TextTable};
+use weir::tables::{human_bytes, TextTable};
 use weir::Result;
 
 use super::args::{CheckArgs, InspectArgs};

@@ -15,6 +15,8 @@ pub mod args;
 mod bench;
 mod check;
 mod gen;
+mod plan;
+mod report;
 mod run;
 
 use std::process::ExitCode;
@@ -89,6 +91,8 @@ fn dispatch(cmd: Command) -> weir::Result<Outcome> {
         Command::Gen(a) => gen::gen(a),
         Command::Calibrate(a) => bench::calibrate(a),
         Command::Bench(a) => bench::bench(a),
+        Command::Plan(a) => plan::plan(a),
+        Command::Report(a) => report::report(a),
     }
 }
 

@@ -3,7 +3,7 @@
 use std::path::Path;
 
 use weir::job::{self, JobSpec, RunSummary};
-use weir::report::{human_bytes, ledger_report, TextTable};
+use weir::tables::{human_bytes, ledger_report, TextTable};
 use weir::{Error, Result};
 
 use super::args::{DemoArgs, RunArgs};

@@ -1,4 +1,4 @@
-//! Text reports: a small aligned-table formatter and the one ledger reporter (totals per
+//! Terminal tables: a small aligned-table formatter and the one ledger reporter (totals per
 //! engine, per channel and per phase). Returns strings; the command line prints them.
 
 use crate::ledger::{Ledger, Region, Totals};
