@@ -15,7 +15,7 @@ pub mod spec;
 
 pub use outdir::{check_target, sha256_hex, OutDir};
 pub use prepare::{prepare, Prepared};
-pub use run::{run_into, RunSummary};
+pub use run::{ledger_only, run_into, RunSummary};
 pub use spec::JobSpec;
 
 use std::path::Path;

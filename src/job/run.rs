@@ -89,13 +89,7 @@ pub fn run_into(
     let mut parts = Vec::new();
     let mut goldens = Vec::new();
     for e in 0..prep.engines.len() {
-        let rows: Vec<Option<Table>> = timed(&mut clock.gen_s, || {
-            prep.tables
-                .iter()
-                .zip(&prep.engines[e].rows)
-                .map(|(t, r)| (t.share == Share::Partitioned).then(|| t.source.rows_of(r.clone())))
-                .collect()
-        });
+        let rows = timed(&mut clock.gen_s, || partition_rows(prep, e));
         timed(&mut clock.write_s, || {
             write_partitions(&mut w, prep, e, &rows)
         })?;
@@ -126,6 +120,26 @@ pub fn run_into(
     let summary = summarize(prep, listed + 2, ledger, parts, &clock);
     w.unlisted("timing.json", timing_json(&summary).as_bytes())?;
     Ok(summary)
+}
+
+/// Runs every engine of `prep` without writing anything and returns the merged ledger
+/// (for what-if sweeps: each partition is generated once).
+pub fn ledger_only(prep: &Prepared) -> Result<Ledger> {
+    let mut ledger = Ledger::new();
+    for e in 0..prep.engines.len() {
+        let rows: Vec<Option<Table>> = partition_rows(prep, e);
+        ledger.merge(&run_engine(prep, e, &rows)?.ledger);
+    }
+    Ok(ledger)
+}
+
+/// Engine `e`'s partitions of the partitioned tables (`None` for replicated ones).
+fn partition_rows(prep: &Prepared, e: usize) -> Vec<Option<Table>> {
+    prep.tables
+        .iter()
+        .zip(&prep.engines[e].rows)
+        .map(|(t, r)| (t.share == Share::Partitioned).then(|| t.source.rows_of(r.clone())))
+        .collect()
 }
 
 /// Engine `e`'s kernel run on its partitions (`rows`, by input) and replicated tables.
