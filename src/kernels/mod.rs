@@ -3,6 +3,7 @@
 
 pub mod predicate;
 pub mod scan;
+pub mod sgd;
 
 use crate::kernels::predicate::Value;
 use crate::table::{Column, ColumnData};
