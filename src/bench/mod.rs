@@ -3,4 +3,5 @@
 
 pub mod calibrate;
 pub mod scan;
+pub mod sgd;
 pub mod stats;

@@ -264,6 +264,12 @@ fn penalty(m: &Model, d: usize, l2: f64) -> f64 {
 /// Trains every engine; `io[e]` places engine e. Engines of one epoch run in parallel.
 pub fn train(data: &SgdData, p: &SgdParams, io: &[SgdIo]) -> Result<Vec<SgdEngineResult>, SgdError> {
     validate(data, p, None)?;
+    train_validated(data, p, io)
+}
+
+/// [`train`] for data and parameters that [`validate`] has accepted (so a caller that
+/// trains the same data repeatedly checks it once).
+pub fn train_validated(data: &SgdData, p: &SgdParams, io: &[SgdIo]) -> Result<Vec<SgdEngineResult>, SgdError> {
     let e_count = p.engines.engines();
     if io.len() != e_count {
         return Err(SgdError::Param(format!("{} engine placements for {e_count} engines", io.len())));

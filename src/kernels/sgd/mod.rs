@@ -25,7 +25,7 @@ mod params;
 pub mod real;
 pub mod tree;
 
-pub use engine::{record_bytes, train, train_engine};
+pub use engine::{record_bytes, train, train_engine, train_validated};
 pub use fixed::{FixedSpec, Overflow, Rounding};
 pub use loss::Loss;
 pub use params::{
