@@ -62,6 +62,8 @@ pub struct SgdPoint {
     pub ratio_min: f64,
     /// See `ratio_min`.
     pub ratio_max: f64,
+    /// Engine 0's final model (for comparing with another implementation).
+    pub model: Vec<f64>,
 }
 
 /// The name of a mode in tables.
@@ -144,15 +146,16 @@ pub fn bench_sgd(
                 for &b in &p.batches {
                     let params = bench_params(b.min(rows as usize), numeric.clone(), t);
                     let io = bench_io(t);
-                    let (mut kt, mut rt) = (Vec::new(), Vec::new());
+                    let (mut kt, mut rt, mut model) = (Vec::new(), Vec::new(), Vec::new());
                     pool.install(|| -> Result<(), SgdError> {
                         for run in 0..=p.runs {
                             let s = Instant::now();
                             std::hint::black_box(read_pass(&data, t));
                             let r = s.elapsed().as_secs_f64();
                             let s = Instant::now();
-                            std::hint::black_box(train_validated(&data, &params, &io)?);
+                            let r0 = std::hint::black_box(train_validated(&data, &params, &io)?);
                             let k = s.elapsed().as_secs_f64();
+                            model = r0[0].model.to_f64();
                             if run > 0 {
                                 rt.push(r);
                                 kt.push(k);
@@ -176,6 +179,7 @@ pub fn bench_sgd(
                         ratio_min: ratios.iter().copied().fold(f64::INFINITY, f64::min),
                         ratio_max: ratios.iter().copied().fold(0.0, f64::max),
                         time,
+                        model,
                     });
                     progress(points.len(), total);
                 }
