@@ -16,11 +16,24 @@ use weir::ledger::{Direction, Key, Phase, Region};
 use weir::table::QFormat;
 
 fn gen(rows: u64, dims: usize, labels: Labels, seed: u64) -> SgdData {
-    SgdGen { rows, dims, seed, scale: vec![1.0, 0.5, 2.0], noise: 0.1, bias: 0.3, labels }.generate().data
+    SgdGen {
+        rows,
+        dims,
+        seed,
+        scale: vec![1.0, 0.5, 2.0],
+        noise: 0.1,
+        bias: 0.3,
+        labels,
+    }
+    .generate()
+    .data
 }
 
 fn hyper(eta: f64, l2: f64) -> Hyper {
-    Hyper { step: Step { eta, decay: 0.0 }, l2 }
+    Hyper {
+        step: Step { eta, decay: 0.0 },
+        l2,
+    }
 }
 
 fn params(loss: Loss, batch: usize, numeric: Numeric, epochs: u32) -> SgdParams {
@@ -42,7 +55,13 @@ fn params(loss: Loss, batch: usize, numeric: Numeric, epochs: u32) -> SgdParams 
 }
 
 fn io(engine: u32) -> SgdIo {
-    SgdIo { engine, word_bytes: 64, channel: engine, data_base: 0, model_base: 0 }
+    SgdIo {
+        engine,
+        word_bytes: 64,
+        channel: engine,
+        data_base: 0,
+        model_base: 0,
+    }
 }
 
 fn ios(n: usize) -> Vec<SgdIo> {
@@ -50,11 +69,17 @@ fn ios(n: usize) -> Vec<SgdIo> {
 }
 
 fn f32_mode() -> Numeric {
-    Numeric::F32 { lanes: 16, ftz: false }
+    Numeric::F32 {
+        lanes: 16,
+        ftz: false,
+    }
 }
 
 fn fixed_mode(rounding: Rounding) -> Numeric {
-    let q = |i, f| QFormat { int_bits: i, frac_bits: f };
+    let q = |i, f| QFormat {
+        int_bits: i,
+        frac_bits: f,
+    };
     Numeric::Fixed(FixedSpec {
         data: q(7, 8),
         model: q(7, 24),
@@ -87,7 +112,10 @@ fn full_batch_step_equals_finite_difference_gradient() {
         let mean_loss = |w: &[f64]| {
             (0..64)
                 .map(|i| {
-                    let z = (0..5).map(|j| f64::from(data.features[[i, j]]) * w[j]).sum::<f64>() + w[5];
+                    let z = (0..5)
+                        .map(|j| f64::from(data.features[[i, j]]) * w[j])
+                        .sum::<f64>()
+                        + w[5];
                     loss.value(z, f64::from(data.labels[i]))
                 })
                 .sum::<f64>()
@@ -99,7 +127,11 @@ fn full_batch_step_equals_finite_difference_gradient() {
             a[j] = h;
             b[j] = -h;
             let fd = (mean_loss(&a) - mean_loss(&b)) / (2.0 * h);
-            assert!((-step[j] - fd).abs() < 1e-6, "{loss:?} coordinate {j}: {} vs {fd}", -step[j]);
+            assert!(
+                (-step[j] - fd).abs() < 1e-6,
+                "{loss:?} coordinate {j}: {} vs {fd}",
+                -step[j]
+            );
         }
     }
 }
@@ -110,7 +142,12 @@ fn f32_agrees_with_f64() {
     // weight is within 1e-4·(1 + |w|) of the f64 reference.
     let data = gen(2000, 8, Labels::Regression, 5);
     let a = train(&data, &params(Loss::Squared, 16, f32_mode(), 10), &ios(1)).unwrap();
-    let b = train(&data, &params(Loss::Squared, 16, Numeric::F64 { lanes: 1 }, 10), &ios(1)).unwrap();
+    let b = train(
+        &data,
+        &params(Loss::Squared, 16, Numeric::F64 { lanes: 1 }, 10),
+        &ios(1),
+    )
+    .unwrap();
     for (x, y) in a[0].model.to_f64().iter().zip(b[0].model.to_f64()) {
         assert!((x - y).abs() <= 1e-4 * (1.0 + y.abs()), "{x} vs {y}");
     }
@@ -122,10 +159,22 @@ fn fixed_point_tracks_f64() {
     // is the larger error, so the f64 run sees the same quantised data).
     let data = gen(1000, 4, Labels::Regression, 8);
     let mut q = data.clone();
-    q.features.mapv_inplace(|v| (v * 256.0).round_ties_even() / 256.0);
-    q.labels.mapv_inplace(|v| (v * 256.0).round_ties_even() / 256.0);
-    let a = train(&data, &params(Loss::Squared, 8, fixed_mode(Rounding::NearestEven), 5), &ios(1)).unwrap();
-    let b = train(&q, &params(Loss::Squared, 8, Numeric::F64 { lanes: 1 }, 5), &ios(1)).unwrap();
+    q.features
+        .mapv_inplace(|v| (v * 256.0).round_ties_even() / 256.0);
+    q.labels
+        .mapv_inplace(|v| (v * 256.0).round_ties_even() / 256.0);
+    let a = train(
+        &data,
+        &params(Loss::Squared, 8, fixed_mode(Rounding::NearestEven), 5),
+        &ios(1),
+    )
+    .unwrap();
+    let b = train(
+        &q,
+        &params(Loss::Squared, 8, Numeric::F64 { lanes: 1 }, 5),
+        &ios(1),
+    )
+    .unwrap();
     for (x, y) in a[0].model.to_f64().iter().zip(b[0].model.to_f64()) {
         assert!((x - y).abs() <= 1e-3, "{x} vs {y}");
     }
@@ -202,13 +251,19 @@ proptest! {
 
 fn all_modes_run(data: &SgdData) -> Vec<Vec<SgdEngineResult>> {
     let mut out = Vec::new();
-    for numeric in [f32_mode(), Numeric::F64 { lanes: 4 }, fixed_mode(Rounding::Stochastic)] {
+    for numeric in [
+        f32_mode(),
+        Numeric::F64 { lanes: 4 },
+        fixed_mode(Rounding::Stochastic),
+    ] {
         let mut p = params(Loss::Logistic, 7, numeric, 3);
         p.order = Order::Shuffle { seed: 4 };
         p.capacity = Some(100 * 60);
         p.engines = EngineMode::Averaging { engines: 3 };
         out.push(train(data, &p, &ios(3)).unwrap_or_else(|e| panic!("{e}")));
-        p.engines = EngineMode::Independent { sweep: vec![hyper(0.1, 0.0), hyper(0.01, 0.01)] };
+        p.engines = EngineMode::Independent {
+            sweep: vec![hyper(0.1, 0.0), hyper(0.01, 0.01)],
+        };
         out.push(train(data, &p, &ios(2)).unwrap());
     }
     out
@@ -219,7 +274,13 @@ fn thread_count_does_not_change_results() {
     let data = gen(600, 10, Labels::Logistic, 6);
     let runs: Vec<_> = [1, 2, 4]
         .iter()
-        .map(|&t| rayon::ThreadPoolBuilder::new().num_threads(t).build().unwrap().install(|| all_modes_run(&data)))
+        .map(|&t| {
+            rayon::ThreadPoolBuilder::new()
+                .num_threads(t)
+                .build()
+                .unwrap()
+                .install(|| all_modes_run(&data))
+        })
         .collect();
     assert_eq!(runs[0], runs[1]);
     assert_eq!(runs[0], runs[2]);
@@ -229,7 +290,9 @@ fn thread_count_does_not_change_results() {
 fn independent_engine_alone_equals_its_sweep_entry() {
     let data = gen(300, 6, Labels::Margin, 2);
     let mut p = params(Loss::Hinge, 5, f32_mode(), 2);
-    p.engines = EngineMode::Independent { sweep: vec![hyper(0.1, 0.0), hyper(0.02, 0.1)] };
+    p.engines = EngineMode::Independent {
+        sweep: vec![hyper(0.1, 0.0), hyper(0.02, 0.1)],
+    };
     let all = train(&data, &p, &ios(2)).unwrap();
     let one = train_engine(&data, &p, &io(1)).unwrap();
     assert_eq!(all[1], one);
@@ -245,26 +308,54 @@ fn ledger_matches_closed_form() {
     let rec = (d as u64 + 1) * 4;
     let mut p = params(Loss::Squared, 10, f32_mode(), 2);
     let r = train(&data, &p, &ios(1)).unwrap().remove(0);
-    let read = r.ledger.get(&Key::device(0, Phase::nth("epoch", 1), 0, Direction::Read)).unwrap();
+    let read = r
+        .ledger
+        .get(&Key::device(0, Phase::nth("epoch", 1), 0, Direction::Read))
+        .unwrap();
     assert_eq!(read.bytes, n as u64 * rec);
     assert_eq!(read.words, (n as u64 * rec).div_ceil(w));
     assert_eq!(read.rows, n as u64);
     assert_eq!(r.feature_bytes, vec![n as u64 * d as u64 * 4; 2]);
-    let onchip = r.ledger.get(&Key { engine: 0, phase: Phase::nth("epoch", 0), region: Region::OnChip, channel: None, direction: Direction::Write }).unwrap();
+    let onchip = r
+        .ledger
+        .get(&Key {
+            engine: 0,
+            phase: Phase::nth("epoch", 0),
+            region: Region::OnChip,
+            channel: None,
+            direction: Direction::Write,
+        })
+        .unwrap();
     assert_eq!(onchip.bytes, (n / 10) as u64 * (d as u64 + 1) * 4);
     // Blocks: capacity for 300 records → 4 blocks per epoch, every one loaded each epoch.
     p.capacity = Some(300 * rec + 7);
     let r = train(&data, &p, &ios(1)).unwrap().remove(0);
-    let loads: Vec<_> = r.ledger.entries().filter(|(k, _)| k.phase.name == "load" && k.region == Region::HostLink).collect();
+    let loads: Vec<_> = r
+        .ledger
+        .entries()
+        .filter(|(k, _)| k.phase.name == "load" && k.region == Region::HostLink)
+        .collect();
     assert_eq!(loads.len(), 8);
-    assert_eq!(loads.iter().map(|(_, t)| t.bytes).sum::<u64>(), 2 * n as u64 * rec);
+    assert_eq!(
+        loads.iter().map(|(_, t)| t.bytes).sum::<u64>(),
+        2 * n as u64 * rec
+    );
     // Padded records: each record is its own ⌈rec / W⌉ words.
     p.capacity = None;
     p.pad_records = true;
     let r = train(&data, &p, &ios(1)).unwrap().remove(0);
-    let read = r.ledger.get(&Key::device(0, Phase::nth("epoch", 0), 0, Direction::Read)).unwrap();
-    assert_eq!((read.bytes, read.words), (n as u64 * rec, n as u64 * rec.div_ceil(w)));
-    assert_eq!(record_bytes(&data, &p, w).len() as u64, n as u64 * rec.div_ceil(w) * w);
+    let read = r
+        .ledger
+        .get(&Key::device(0, Phase::nth("epoch", 0), 0, Direction::Read))
+        .unwrap();
+    assert_eq!(
+        (read.bytes, read.words),
+        (n as u64 * rec, n as u64 * rec.div_ceil(w))
+    );
+    assert_eq!(
+        record_bytes(&data, &p, w).len() as u64,
+        n as u64 * rec.div_ceil(w) * w
+    );
 }
 
 #[test]
@@ -275,7 +366,11 @@ fn snapshots_losses_and_early_stop() {
     p.tol = Some(1e-6);
     let r = train(&data, &p, &ios(1)).unwrap().remove(0);
     assert_eq!(r.snapshots.len(), 3);
-    assert!(r.losses.len() < 40, "early stop after {} epochs", r.losses.len());
+    assert!(
+        r.losses.len() < 40,
+        "early stop after {} epochs",
+        r.losses.len()
+    );
     assert!(r.losses[0] > *r.losses.last().unwrap());
     assert_eq!(r.epoch_models.last(), Some(&r.model));
 }
@@ -287,32 +382,71 @@ fn bad_input_is_a_one_line_error() {
     let err = |d: &SgdData, p: &SgdParams| train(d, p, &ios(1)).unwrap_err().to_string();
     assert!(err(&data, &params(Loss::Hinge, 4, f32_mode(), 1)).contains("is not in {-1, +1}"));
     data.features[[7, 2]] = f32::NAN;
-    assert_eq!(err(&data, &p), "row 7, column 2: NaN is not a finite number");
+    assert_eq!(
+        err(&data, &p),
+        "row 7, column 2: NaN is not a finite number"
+    );
     let data = gen(20, 3, Labels::Regression, 1);
     let mut p = params(Loss::Squared, 4, f32_mode(), 30);
     p.hyper = hyper(50.0, 0.0);
-    assert!(err(&data, &p).starts_with("engine 0 diverged in epoch 0"), "{}", err(&data, &p));
+    assert!(
+        err(&data, &p).starts_with("engine 0 diverged in epoch 0"),
+        "{}",
+        err(&data, &p)
+    );
     p.capacity = Some(8);
     p.hyper = hyper(0.01, 0.0);
-    assert_eq!(err(&data, &p), "capacity 8 bytes is smaller than one record of 16 bytes");
+    assert_eq!(
+        err(&data, &p),
+        "capacity 8 bytes is smaller than one record of 16 bytes"
+    );
     p.capacity = None;
     if let Numeric::Fixed(mut s) = fixed_mode(Rounding::Truncate) {
-        s.acc = QFormat { int_bits: 40, frac_bits: 30 };
+        s.acc = QFormat {
+            int_bits: 40,
+            frac_bits: 30,
+        };
         p.numeric = Numeric::Fixed(s);
     }
-    assert_eq!(err(&data, &p), "accumulator format Q40.30 needs 71 bits with the sign, more than 64");
-    assert!(validate(&data, &params(Loss::Squared, 4, f32_mode(), 1), Some(4)).unwrap_err().to_string().contains("3 features"));
+    assert_eq!(
+        err(&data, &p),
+        "accumulator format Q40.30 needs 71 bits with the sign, more than 64"
+    );
+    assert!(
+        validate(&data, &params(Loss::Squared, 4, f32_mode(), 1), Some(4))
+            .unwrap_err()
+            .to_string()
+            .contains("3 features")
+    );
 }
 
 #[test]
 fn generator_bytes_are_pinned() {
     // Changing generated bytes must be a deliberate decision that updates this hash.
-    let g = SgdGen { rows: 5000, dims: 5, seed: 11, scale: vec![1.0, 3.0], noise: 0.2, bias: -0.5, labels: Labels::Logistic };
+    let g = SgdGen {
+        rows: 5000,
+        dims: 5,
+        seed: 11,
+        scale: vec![1.0, 3.0],
+        noise: 0.2,
+        bias: -0.5,
+        labels: Labels::Logistic,
+    };
     let data = g.generate().data;
     let p = params(Loss::Logistic, 1, f32_mode(), 1);
-    let hex: String = Sha256::digest(record_bytes(&data, &p, 64)).iter().map(|b| format!("{b:02x}")).collect();
-    assert_eq!(hex, "06318a25980f6ef0b10026a9e513dfa23ca194b8a20540c20876e9db65ca6915");
-    let one = rayon::ThreadPoolBuilder::new().num_threads(1).build().unwrap().install(|| g.generate());
+    let hex: String = Sha256::digest(record_bytes(&data, &p, 64))
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect();
+    assert_eq!(
+        hex,
+        "06318a25980f6ef0b10026a9e513dfa23ca194b8a20540c20876e9db65ca6915"
+    );
+    let one = rayon::ThreadPoolBuilder::new()
+        .num_threads(1)
+        .build()
+        .unwrap()
+        .install(|| g.generate());
     assert_eq!(one.data, data);
 }
 
@@ -348,7 +482,9 @@ print(json.dumps({"X": X.tolist(), "y": y.tolist(), "yb": yb.tolist(), "lstsq": 
 "#;
 
 fn diabetes() -> Option<serde_json::Value> {
-    let out = std::process::Command::new("python3").args(["-c", DIABETES]).output();
+    let out = std::process::Command::new("python3")
+        .args(["-c", DIABETES])
+        .output();
     let ok = matches!(&out, Ok(o) if o.status.success());
     if !available("python3 with numpy and scikit-learn", ok) {
         return None;
@@ -357,7 +493,11 @@ fn diabetes() -> Option<serde_json::Value> {
 }
 
 fn floats(v: &serde_json::Value) -> Vec<f64> {
-    v.as_array().unwrap().iter().map(|x| x.as_f64().unwrap()).collect()
+    v.as_array()
+        .unwrap()
+        .iter()
+        .map(|x| x.as_f64().unwrap())
+        .collect()
 }
 
 fn dataset(j: &serde_json::Value, labels: &str) -> SgdData {
@@ -365,12 +505,20 @@ fn dataset(j: &serde_json::Value, labels: &str) -> SgdData {
     let (n, d) = (rows.len(), rows[0].len());
     SgdData {
         features: Array2::from_shape_fn((n, d), |(i, k)| rows[i][k] as f32),
-        labels: Array1::from(floats(&j[labels]).iter().map(|&v| v as f32).collect::<Vec<_>>()),
+        labels: Array1::from(
+            floats(&j[labels])
+                .iter()
+                .map(|&v| v as f32)
+                .collect::<Vec<_>>(),
+        ),
     }
 }
 
 fn max_diff(a: &[f64], b: &[f64]) -> f64 {
-    a.iter().zip(b).map(|(x, y)| (x - y).abs()).fold(0.0, f64::max)
+    a.iter()
+        .zip(b)
+        .map(|(x, y)| (x - y).abs())
+        .fold(0.0, f64::max)
 }
 
 #[test]
@@ -380,7 +528,13 @@ fn squared_loss_converges_to_least_squares() {
     let (n, d) = (data.rows(), data.dims());
     // Reference 1: numpy.linalg.lstsq. Reference 2: nalgebra's SVD solve of the same system.
     let lstsq = floats(&j["lstsq"]);
-    let a = nalgebra::DMatrix::from_fn(n, d + 1, |i, k| if k < d { f64::from(data.features[[i, k]]) } else { 1.0 });
+    let a = nalgebra::DMatrix::from_fn(n, d + 1, |i, k| {
+        if k < d {
+            f64::from(data.features[[i, k]])
+        } else {
+            1.0
+        }
+    });
     let y = nalgebra::DVector::from_fn(n, |i, _| f64::from(data.labels[i]));
     let svd = a.svd(true, true).solve(&y, 1e-12).unwrap();
     let svd: Vec<f64> = svd.iter().copied().collect();
@@ -389,25 +543,41 @@ fn squared_loss_converges_to_least_squares() {
     let mut p = params(Loss::Squared, n, Numeric::F64 { lanes: 1 }, 20000);
     p.hyper = hyper(0.2, 0.0);
     let w = train(&data, &p, &ios(1)).unwrap().remove(0).model.to_f64();
-    assert!(max_diff(&w, &lstsq) < 1e-6, "full batch: {}", max_diff(&w, &lstsq));
+    assert!(
+        max_diff(&w, &lstsq) < 1e-6,
+        "full batch: {}",
+        max_diff(&w, &lstsq)
+    );
     // Minibatch B = 16, decaying step, f32 with the 16-lane tree: the features are strongly
     // correlated (s1, s2), so the weights converge slowly along that direction; the check
     // is on the objective: mean squared loss within 1 % of the least-squares minimum.
     let mut p = params(Loss::Squared, 16, f32_mode(), 400);
-    p.hyper = Hyper { step: Step { eta: 0.05, decay: 0.002 }, l2: 0.0 };
+    p.hyper = Hyper {
+        step: Step {
+            eta: 0.05,
+            decay: 0.002,
+        },
+        l2: 0.0,
+    };
     p.order = Order::Shuffle { seed: 1 };
     let w = train(&data, &p, &ios(1)).unwrap().remove(0).model.to_f64();
     let mse = |w: &[f64]| {
         (0..n)
             .map(|i| {
-                let z = (0..d).map(|k| f64::from(data.features[[i, k]]) * w[k]).sum::<f64>() + w[d];
+                let z = (0..d)
+                    .map(|k| f64::from(data.features[[i, k]]) * w[k])
+                    .sum::<f64>()
+                    + w[d];
                 Loss::Squared.value(z, f64::from(data.labels[i]))
             })
             .sum::<f64>()
             / n as f64
     };
     let (got, best) = (mse(&w), mse(&lstsq));
-    assert!(got <= best * 1.01, "minibatch: loss {got} vs least squares {best}");
+    assert!(
+        got <= best * 1.01,
+        "minibatch: loss {got} vs least squares {best}"
+    );
 }
 
 #[test]
@@ -419,8 +589,17 @@ fn logistic_loss_reaches_the_scikit_learn_optimum() {
     // ours minimises (1/n)·Σᵢ ℓᵢ + (λ/2)‖w‖². Dividing the first by n·C gives λ = 1/(n·C).
     let l2 = 1.0 / (n * j["C"].as_f64().unwrap());
     let lr = floats(&j["lr"]);
-    let mut p = params(Loss::Logistic, data.rows(), Numeric::F64 { lanes: 1 }, 20000);
+    let mut p = params(
+        Loss::Logistic,
+        data.rows(),
+        Numeric::F64 { lanes: 1 },
+        20000,
+    );
     p.hyper = hyper(2.0, l2);
     let w = train(&data, &p, &ios(1)).unwrap().remove(0).model.to_f64();
-    assert!(max_diff(&w, &lr) < 1e-4, "logistic: {} ({w:?} vs {lr:?})", max_diff(&w, &lr));
+    assert!(
+        max_diff(&w, &lr) < 1e-4,
+        "logistic: {} ({w:?} vs {lr:?})",
+        max_diff(&w, &lr)
+    );
 }

@@ -18,10 +18,20 @@ pub fn bench(c: &mut Criterion) {
         let data = bench_data(rows, d);
         let mut g = c.benchmark_group(format!("sgd_f32_d{d}"));
         for &t in &threads {
-            let pool = rayon::ThreadPoolBuilder::new().num_threads(t).build().unwrap();
+            let pool = rayon::ThreadPoolBuilder::new()
+                .num_threads(t)
+                .build()
+                .unwrap();
             g.throughput(Throughput::Bytes(rows * (d as u64 + 1) * 4 * t as u64));
             for b in [1usize, 16, 256] {
-                let p = bench_params(b, Numeric::F32 { lanes: 16, ftz: false }, t);
+                let p = bench_params(
+                    b,
+                    Numeric::F32 {
+                        lanes: 16,
+                        ftz: false,
+                    },
+                    t,
+                );
                 let io = bench_io(t);
                 g.bench_with_input(BenchmarkId::new(format!("{t}thr"), b), &b, |bch, _| {
                     bch.iter(|| pool.install(|| train_validated(&data, &p, &io).unwrap().len()))

@@ -77,12 +77,28 @@ pub fn mode_name(n: &Numeric) -> String {
 
 /// The bench's dataset: `rows` samples of `dims` features, regression labels.
 pub fn bench_data(rows: u64, dims: usize) -> SgdData {
-    SgdGen { rows, dims, seed: 1, scale: vec![1.0], noise: 0.1, bias: 0.0, labels: Labels::Regression }.generate().data
+    SgdGen {
+        rows,
+        dims,
+        seed: 1,
+        scale: vec![1.0],
+        noise: 0.1,
+        bias: 0.0,
+        labels: Labels::Regression,
+    }
+    .generate()
+    .data
 }
 
 /// The bench's parameters: squared loss, one epoch, input order, `threads` engines.
 pub fn bench_params(batch: usize, numeric: Numeric, threads: usize) -> SgdParams {
-    let h = Hyper { step: Step { eta: 1e-3, decay: 0.0 }, l2: 0.0 };
+    let h = Hyper {
+        step: Step {
+            eta: 1e-3,
+            decay: 0.0,
+        },
+        l2: 0.0,
+    };
     SgdParams {
         loss: Loss::Squared,
         batch,
@@ -92,7 +108,9 @@ pub fn bench_params(batch: usize, numeric: Numeric, threads: usize) -> SgdParams
         order: Order::Input,
         tol: None,
         numeric,
-        engines: EngineMode::Independent { sweep: vec![h; threads] },
+        engines: EngineMode::Independent {
+            sweep: vec![h; threads],
+        },
         capacity: None,
         block_epochs: 1,
         snapshots: 0,
@@ -102,7 +120,15 @@ pub fn bench_params(batch: usize, numeric: Numeric, threads: usize) -> SgdParams
 
 /// Engine placements for `n` engines (64-byte words, separate channels).
 pub fn bench_io(n: usize) -> Vec<SgdIo> {
-    (0..n as u32).map(|e| SgdIo { engine: e, word_bytes: 64, channel: e, data_base: 0, model_base: 0 }).collect()
+    (0..n as u32)
+        .map(|e| SgdIo {
+            engine: e,
+            word_bytes: 64,
+            channel: e,
+            data_base: 0,
+            model_base: 0,
+        })
+        .collect()
 }
 
 /// `threads` threads each summing every feature and label once (the bytes one epoch of
@@ -138,10 +164,17 @@ pub fn bench_sgd(
         let rows = p.rows.min(p.max_bytes / ((d as u64 + 1) * 4)).max(1);
         let data = bench_data(rows, d);
         data_for(d, &data);
-        validate(&data, &bench_params(1, Numeric::F64 { lanes: 1 }, 1), Some(d))?;
+        validate(
+            &data,
+            &bench_params(1, Numeric::F64 { lanes: 1 }, 1),
+            Some(d),
+        )?;
         let bytes = rows * (d as u64 + 1) * 4;
         for &t in &p.threads {
-            let pool = rayon::ThreadPoolBuilder::new().num_threads(t).build().expect("thread pool");
+            let pool = rayon::ThreadPoolBuilder::new()
+                .num_threads(t)
+                .build()
+                .expect("thread pool");
             for numeric in &p.modes {
                 for &b in &p.batches {
                     let params = bench_params(b.min(rows as usize), numeric.clone(), t);
@@ -206,7 +239,12 @@ pub fn chart(points: &[SgdPoint]) -> Chart {
             name: format!("{t} thr, {m}, B={b}"),
             values: dims
                 .iter()
-                .map(|&d| points.iter().find(|p| p.dims == d && p.threads == *t && &p.mode == m && p.batch == *b).map(|p| p.gbps))
+                .map(|&d| {
+                    points
+                        .iter()
+                        .find(|p| p.dims == d && p.threads == *t && &p.mode == m && p.batch == *b)
+                        .map(|p| p.gbps)
+                })
                 .collect(),
         })
         .collect();
@@ -226,8 +264,21 @@ pub fn to_csv(points: &[SgdPoint]) -> String {
     for p in points {
         s.push_str(&format!(
             "{},{},{},{},{},{},{:.6},{:.6},{:.6},{:.0},{:.3},{:.3},{:.3},{:.3},{:.3}\n",
-            p.dims, p.batch, p.rows, p.threads, p.mode, p.time.runs, p.time.median_s, p.time.min_s, p.time.max_s,
-            p.samples_per_s, p.gbps, p.read_gbps, p.ratio, p.ratio_min, p.ratio_max
+            p.dims,
+            p.batch,
+            p.rows,
+            p.threads,
+            p.mode,
+            p.time.runs,
+            p.time.median_s,
+            p.time.min_s,
+            p.time.max_s,
+            p.samples_per_s,
+            p.gbps,
+            p.read_gbps,
+            p.ratio,
+            p.ratio_min,
+            p.ratio_max
         ));
     }
     s

@@ -103,7 +103,11 @@ fn gen_scan(a: GenScanArgs) -> Result<Outcome> {
 }
 
 /// `PREFIX.x.npy` (n × d `f32`) and `PREFIX.y.npy` of `data`.
-pub fn sgd_npy(prefix: &std::path::Path, data: &weir::kernels::sgd::SgdData, force: bool) -> Result<()> {
+pub fn sgd_npy(
+    prefix: &std::path::Path,
+    data: &weir::kernels::sgd::SgdData,
+    force: bool,
+) -> Result<()> {
     let (n, d) = (data.rows() as u64, data.dims() as u64);
     let x: Vec<u8> = data.features.iter().flat_map(|v| v.to_le_bytes()).collect();
     let y: Vec<u8> = data.labels.iter().flat_map(|v| v.to_le_bytes()).collect();
@@ -122,22 +126,50 @@ fn gen_sgd(a: GenSgdArgs) -> Result<Outcome> {
         "regression" => Labels::Regression,
         "logistic" => Labels::Logistic,
         "margin" => Labels::Margin,
-        o => return Err(Error::input(format!("--labels `{o}`: expected regression, logistic or margin"))),
+        o => {
+            return Err(Error::input(format!(
+                "--labels `{o}`: expected regression, logistic or margin"
+            )))
+        }
     };
-    if a.rows == 0 || a.dims == 0 || a.scale.iter().any(|s| !s.is_finite()) || !a.noise.is_finite() {
-        return Err(Error::input("--rows and --dims must be at least 1; --scale and --noise finite"));
+    if a.rows == 0 || a.dims == 0 || a.scale.iter().any(|s| !s.is_finite()) || !a.noise.is_finite()
+    {
+        return Err(Error::input(
+            "--rows and --dims must be at least 1; --scale and --noise finite",
+        ));
     }
-    let g = SgdGen { rows: a.rows, dims: a.dims, seed: a.seed, scale: a.scale.clone(), noise: a.noise, bias: a.bias, labels };
+    let g = SgdGen {
+        rows: a.rows,
+        dims: a.dims,
+        seed: a.seed,
+        scale: a.scale.clone(),
+        noise: a.noise,
+        bias: a.bias,
+        labels,
+    };
     let out = g.generate();
     let wpath = a.out.with_extension("weights.json");
     if wpath.exists() && !a.force {
-        return Err(Error::exists(format!("{} exists; add --force to replace it", wpath.display())));
+        return Err(Error::exists(format!(
+            "{} exists; add --force to replace it",
+            wpath.display()
+        )));
     }
     sgd_npy(&a.out, &out.data, a.force)?;
     let json = serde_json::json!({ "weights": out.weights, "bias": out.bias, "seed": a.seed, "labels": a.labels });
-    write_file_atomic(&wpath, (serde_json::to_string_pretty(&json).expect("json") + "\n").as_bytes(), a.force)?;
-    say!("wrote {} samples of {} f32 features to {} and {}; true weights in {}", a.rows, a.dims,
-        a.out.with_extension("x.npy").display(), a.out.with_extension("y.npy").display(), wpath.display());
+    write_file_atomic(
+        &wpath,
+        (serde_json::to_string_pretty(&json).expect("json") + "\n").as_bytes(),
+        a.force,
+    )?;
+    say!(
+        "wrote {} samples of {} f32 features to {} and {}; true weights in {}",
+        a.rows,
+        a.dims,
+        a.out.with_extension("x.npy").display(),
+        a.out.with_extension("y.npy").display(),
+        wpath.display()
+    );
     Ok(Outcome::Ok)
 }
 

@@ -93,7 +93,11 @@ impl SgdGen {
         let mut x = vec![0f32; len * d];
         for j in 0..d {
             let mut s = Stream::new(self.seed, "sgd", &format!("x{j}"), b);
-            let sc = self.scale.get(j % self.scale.len().max(1)).copied().unwrap_or(1.0);
+            let sc = self
+                .scale
+                .get(j % self.scale.len().max(1))
+                .copied()
+                .unwrap_or(1.0);
             for r in 0..len {
                 x[r * d + j] = (s.normal() * sc) as f32;
             }
@@ -101,13 +105,22 @@ impl SgdGen {
         let mut s = Stream::new(self.seed, "sgd", "y", b);
         let y = (0..len)
             .map(|r| {
-                let t = x[r * d..(r + 1) * d].iter().zip(w).fold(self.bias, |a, (&xj, &wj)| a + f64::from(xj) * wj);
+                let t = x[r * d..(r + 1) * d]
+                    .iter()
+                    .zip(w)
+                    .fold(self.bias, |a, (&xj, &wj)| a + f64::from(xj) * wj);
                 let eps = s.normal() * self.noise;
                 let u = s.unit();
                 match self.labels {
                     Labels::Regression => (t + eps) as f32,
                     Labels::Logistic => f32::from(u8::from(u < 1.0 / (1.0 + libm::exp(-t)))),
-                    Labels::Margin => if t + eps >= 0.0 { 1.0 } else { -1.0 },
+                    Labels::Margin => {
+                        if t + eps >= 0.0 {
+                            1.0
+                        } else {
+                            -1.0
+                        }
+                    }
                 }
             })
             .collect();

@@ -42,10 +42,16 @@ macro_rules! each {
 impl<'a> Trainer<'a> {
     fn new(data: &'a SgdData, p: &SgdParams) -> Trainer<'a> {
         match p.numeric {
-            Numeric::F32 { lanes, ftz: false } => Trainer::F32(FloatTrainer::new(data, p.loss, lanes, p.bias)),
-            Numeric::F32 { lanes, ftz: true } => Trainer::F32Ftz(FloatTrainer::new(data, p.loss, lanes, p.bias)),
+            Numeric::F32 { lanes, ftz: false } => {
+                Trainer::F32(FloatTrainer::new(data, p.loss, lanes, p.bias))
+            }
+            Numeric::F32 { lanes, ftz: true } => {
+                Trainer::F32Ftz(FloatTrainer::new(data, p.loss, lanes, p.bias))
+            }
             Numeric::F64 { lanes } => Trainer::F64(FloatTrainer::new(data, p.loss, lanes, p.bias)),
-            Numeric::Fixed(spec) => Trainer::Fixed(Box::new(FixedTrainer::new(data, spec, p.loss, p.bias))),
+            Numeric::Fixed(spec) => {
+                Trainer::Fixed(Box::new(FixedTrainer::new(data, spec, p.loss, p.bias)))
+            }
         }
     }
     fn model(&self) -> Model {
@@ -65,7 +71,11 @@ fn elem_bytes(n: &Numeric) -> u64 {
 /// words when `pad`.
 fn record_shape(d: usize, p: &SgdParams, word_bytes: u64) -> (u64, u64) {
     let payload = (d as u64 + 1) * elem_bytes(&p.numeric);
-    let stride = if p.pad_records { payload.div_ceil(word_bytes) * word_bytes } else { payload };
+    let stride = if p.pad_records {
+        payload.div_ceil(word_bytes) * word_bytes
+    } else {
+        payload
+    };
     (payload, stride)
 }
 
@@ -81,7 +91,12 @@ pub fn record_bytes(data: &SgdData, p: &SgdParams, word_bytes: u64) -> Vec<u8> {
         for v in row.iter().chain(std::iter::once(&y)) {
             match &p.numeric {
                 Numeric::Fixed(s) => {
-                    let q = fixed::from_real(f64::from(*v), s.data.frac_bits, fixed::width(s.data), &mut none);
+                    let q = fixed::from_real(
+                        f64::from(*v),
+                        s.data.frac_bits,
+                        fixed::width(s.data),
+                        &mut none,
+                    );
                     out.extend_from_slice(&q.to_le_bytes()[..elem_bytes(&p.numeric) as usize]);
                 }
                 _ => out.extend_from_slice(&v.to_le_bytes()),
@@ -106,18 +121,31 @@ struct Reads {
 
 impl Reads {
     fn new(base: u64, payload: u64, stride: u64, word_bytes: u64) -> Reads {
-        Reads { base, payload, stride, word_bytes, next: None, cursor: Cursor::new(base, word_bytes), done: Traffic::default() }
+        Reads {
+            base,
+            payload,
+            stride,
+            word_bytes,
+            next: None,
+            cursor: Cursor::new(base, word_bytes),
+            done: Traffic::default(),
+        }
     }
 
     #[inline]
     fn read(&mut self, offset_rows: u64) {
         let addr = self.base + offset_rows * self.stride;
         if self.stride != self.payload {
-            self.done += Traffic { bytes: self.payload, words: words_touched(addr, self.payload, self.word_bytes), rows: 1 };
+            self.done += Traffic {
+                bytes: self.payload,
+                words: words_touched(addr, self.payload, self.word_bytes),
+                rows: 1,
+            };
             return;
         }
         if self.next != Some(addr) {
-            self.done += std::mem::replace(&mut self.cursor, Cursor::new(addr, self.word_bytes)).traffic;
+            self.done +=
+                std::mem::replace(&mut self.cursor, Cursor::new(addr, self.word_bytes)).traffic;
         }
         self.cursor.touch(self.payload, 1);
         self.next = Some(addr + self.payload);
@@ -187,7 +215,11 @@ impl Engine<'_> {
         let mut reads = Reads::new(self.io.data_base, plan.payload, plan.stride, wb);
         let (mut model_r, mut model_w) = (Traffic::default(), Traffic::default());
         let model_words = words_touched(self.io.model_base, plan.model_bytes, wb);
-        let model_t = Traffic { bytes: plan.model_bytes, words: model_words, rows: 0 };
+        let model_t = Traffic {
+            bytes: plan.model_bytes,
+            words: model_words,
+            rows: 0,
+        };
         let (mut samples, eb) = (0u64, plan.payload / (d + 1));
         self.loss_sum = 0.0;
         self.samples = 0;
@@ -198,14 +230,34 @@ impl Engine<'_> {
             if nb > 1 || e == 0 {
                 let load = Phase::nth("load", if nb > 1 { e * nb as u32 + b as u32 } else { 0 });
                 let bytes = rows.len() as u64 * plan.stride;
-                let t = Traffic { bytes, words: words_touched(self.io.data_base, bytes, wb), rows: rows.len() as u64 };
-                self.ledger.add(Key { engine: self.index, phase: load, region: Region::HostLink, channel: None, direction: Direction::Read }, t);
-                self.ledger.add(Key::device(self.index, load, self.io.channel, Direction::Write), t);
+                let t = Traffic {
+                    bytes,
+                    words: words_touched(self.io.data_base, bytes, wb),
+                    rows: rows.len() as u64,
+                };
+                self.ledger.add(
+                    Key {
+                        engine: self.index,
+                        phase: load,
+                        region: Region::HostLink,
+                        channel: None,
+                        direction: Direction::Read,
+                    },
+                    t,
+                );
+                self.ledger.add(
+                    Key::device(self.index, load, self.io.channel, Direction::Write),
+                    t,
+                );
             }
             for k in 0..p.block_epochs {
-                let pass = (u64::from(e) * nb as u64 + b as u64) * u64::from(p.block_epochs) + u64::from(k);
+                let pass = (u64::from(e) * nb as u64 + b as u64) * u64::from(p.block_epochs)
+                    + u64::from(k);
                 let all = order(rows.clone(), p.order, pass);
-                let (lo, hi) = (all.len() * share.0 / share.1, all.len() * (share.0 + 1) / share.1);
+                let (lo, hi) = (
+                    all.len() * share.0 / share.1,
+                    all.len() * (share.0 + 1) / share.1,
+                );
                 for mb in all[lo..hi].chunks(p.batch) {
                     for &r in mb {
                         reads.read((r - start) as u64);
@@ -228,16 +280,38 @@ impl Engine<'_> {
         self.samples = samples;
         self.feature_bytes.push(samples * d * eb);
         self.label_bytes.push(samples * eb);
-        self.ledger.add(Key::device(self.index, phase, self.io.channel, Direction::Read), reads.take());
-        let key = |direction| Key { engine: self.index, phase, region: Region::OnChip, channel: None, direction };
+        self.ledger.add(
+            Key::device(self.index, phase, self.io.channel, Direction::Read),
+            reads.take(),
+        );
+        let key = |direction| Key {
+            engine: self.index,
+            phase,
+            region: Region::OnChip,
+            channel: None,
+            direction,
+        };
         self.ledger.add(key(Direction::Read), model_r);
         self.ledger.add(key(Direction::Write), model_w);
     }
 
     fn finish(mut self, plan: &Plan) -> SgdEngineResult {
-        let t = Traffic { bytes: plan.model_bytes, words: plan.model_bytes.div_ceil(self.io.word_bytes), rows: 0 };
+        let t = Traffic {
+            bytes: plan.model_bytes,
+            words: plan.model_bytes.div_ceil(self.io.word_bytes),
+            rows: 0,
+        };
         let ph = Phase::single("copyback");
-        self.ledger.add(Key { engine: self.index, phase: ph, region: Region::HostLink, channel: None, direction: Direction::Write }, t);
+        self.ledger.add(
+            Key {
+                engine: self.index,
+                phase: ph,
+                region: Region::HostLink,
+                channel: None,
+                direction: Direction::Write,
+            },
+            t,
+        );
         let overflow = match &self.trainer {
             Trainer::Fixed(f) => f.overflow,
             _ => OverflowCounts::default(),
@@ -262,22 +336,38 @@ fn penalty(m: &Model, d: usize, l2: f64) -> f64 {
 }
 
 /// Trains every engine; `io[e]` places engine e. Engines of one epoch run in parallel.
-pub fn train(data: &SgdData, p: &SgdParams, io: &[SgdIo]) -> Result<Vec<SgdEngineResult>, SgdError> {
+pub fn train(
+    data: &SgdData,
+    p: &SgdParams,
+    io: &[SgdIo],
+) -> Result<Vec<SgdEngineResult>, SgdError> {
     validate(data, p, None)?;
     train_validated(data, p, io)
 }
 
 /// [`train`] for data and parameters that [`validate`] has accepted (so a caller that
 /// trains the same data repeatedly checks it once).
-pub fn train_validated(data: &SgdData, p: &SgdParams, io: &[SgdIo]) -> Result<Vec<SgdEngineResult>, SgdError> {
+pub fn train_validated(
+    data: &SgdData,
+    p: &SgdParams,
+    io: &[SgdIo],
+) -> Result<Vec<SgdEngineResult>, SgdError> {
     let e_count = p.engines.engines();
     if io.len() != e_count {
-        return Err(SgdError::Param(format!("{} engine placements for {e_count} engines", io.len())));
+        return Err(SgdError::Param(format!(
+            "{} engine placements for {e_count} engines",
+            io.len()
+        )));
     }
     let d = data.dims();
     let (payload, stride) = record_shape(d, p, io[0].word_bytes);
     let block_rows = match p.capacity {
-        Some(c) if c < stride => return Err(SgdError::Capacity { capacity: c, record: stride }),
+        Some(c) if c < stride => {
+            return Err(SgdError::Capacity {
+                capacity: c,
+                record: stride,
+            })
+        }
         Some(c) => ((c / stride) as usize).min(data.rows()),
         None => data.rows(),
     };
@@ -287,7 +377,14 @@ pub fn train_validated(data: &SgdData, p: &SgdParams, io: &[SgdIo]) -> Result<Ve
         Numeric::F64 { .. } => 8,
         Numeric::Fixed(s) => u64::from(fixed::storage_bits(s.model) / 8),
     };
-    let plan = Plan { data, p, block_rows, payload, stride, model_bytes: m as u64 * mbytes };
+    let plan = Plan {
+        data,
+        p,
+        block_rows,
+        payload,
+        stride,
+        model_bytes: m as u64 * mbytes,
+    };
     let mut engines: Vec<Engine> = (0..e_count)
         .map(|e| Engine {
             index: e as u32,
@@ -308,7 +405,12 @@ pub fn train_validated(data: &SgdData, p: &SgdParams, io: &[SgdIo]) -> Result<Ve
             ledger: Ledger::new(),
         })
         .collect();
-    let zero_loss = data.labels.iter().map(|&y| p.loss.value(0.0, f64::from(y))).sum::<f64>() / data.rows() as f64;
+    let zero_loss = data
+        .labels
+        .iter()
+        .map(|&y| p.loss.value(0.0, f64::from(y)))
+        .sum::<f64>()
+        / data.rows() as f64;
     let averaging = matches!(p.engines, EngineMode::Averaging { .. });
     let mut active: Vec<bool> = vec![true; e_count];
     for e in 0..p.epochs {
@@ -316,7 +418,17 @@ pub fn train_validated(data: &SgdData, p: &SgdParams, io: &[SgdIo]) -> Result<Ve
             .par_iter_mut()
             .zip(active.par_iter())
             .filter(|(_, a)| **a)
-            .for_each(|(en, _)| en.epoch(&plan, e, if averaging { (en.index as usize, e_count) } else { (0, 1) }));
+            .for_each(|(en, _)| {
+                en.epoch(
+                    &plan,
+                    e,
+                    if averaging {
+                        (en.index as usize, e_count)
+                    } else {
+                        (0, 1)
+                    },
+                )
+            });
         let mut shared = None;
         if averaging {
             let models: Vec<Model> = engines.iter().map(|en| en.trainer.model()).collect();
@@ -332,14 +444,28 @@ pub fn train_validated(data: &SgdData, p: &SgdParams, io: &[SgdIo]) -> Result<Ve
             }
             shared = Some(sum / seen as f64);
         }
-        for (en, a) in engines.iter_mut().zip(active.iter_mut()).filter(|(_, a)| **a) {
+        for (en, a) in engines
+            .iter_mut()
+            .zip(active.iter_mut())
+            .filter(|(_, a)| **a)
+        {
             let model = en.trainer.model();
             let mean = shared.unwrap_or(en.loss_sum / en.samples as f64);
             let loss = mean + penalty(&model, d, en.hyper.l2);
             let finite = model.to_f64().iter().all(|v| v.is_finite());
             if !finite || !loss.is_finite() || loss > BLOW_UP * zero_loss.max(1.0) {
-                let why = if finite { format!("loss {loss:e} exceeds {BLOW_UP:e} times the zero model's {zero_loss:e}") } else { "a weight is not finite".into() };
-                return Err(SgdError::Diverged { engine: en.index, epoch: e, why });
+                let why = if finite {
+                    format!(
+                        "loss {loss:e} exceeds {BLOW_UP:e} times the zero model's {zero_loss:e}"
+                    )
+                } else {
+                    "a weight is not finite".into()
+                };
+                return Err(SgdError::Diverged {
+                    engine: en.index,
+                    epoch: e,
+                    why,
+                });
             }
             if let (Some(tol), Some(&prev)) = (p.tol, en.losses.last()) {
                 *a = (prev - loss).abs() > tol;
@@ -359,17 +485,34 @@ pub fn train_validated(data: &SgdData, p: &SgdParams, io: &[SgdIo]) -> Result<Ve
 
 /// Trains one engine of an `Independent` sweep alone (the same result as its entry of
 /// [`train`]).
-pub fn train_engine(data: &SgdData, p: &SgdParams, io: &SgdIo) -> Result<SgdEngineResult, SgdError> {
+pub fn train_engine(
+    data: &SgdData,
+    p: &SgdParams,
+    io: &SgdIo,
+) -> Result<SgdEngineResult, SgdError> {
     let EngineMode::Independent { sweep } = &p.engines else {
-        return Err(SgdError::Param("averaging engines are coupled: train them together".into()));
+        return Err(SgdError::Param(
+            "averaging engines are coupled: train them together".into(),
+        ));
     };
-    let h = *sweep.get(io.engine as usize).ok_or_else(|| SgdError::Param(format!("no sweep entry for engine {}", io.engine)))?;
-    let one = SgdParams { engines: EngineMode::Independent { sweep: vec![h] }, ..p.clone() };
+    let h = *sweep
+        .get(io.engine as usize)
+        .ok_or_else(|| SgdError::Param(format!("no sweep entry for engine {}", io.engine)))?;
+    let one = SgdParams {
+        engines: EngineMode::Independent { sweep: vec![h] },
+        ..p.clone()
+    };
     let mut r = train(data, &one, &[SgdIo { engine: 0, ..*io }])?.remove(0);
     r.engine = io.engine;
     let mut ledger = Ledger::new();
     for (k, t) in r.ledger.entries() {
-        ledger.add(Key { engine: io.engine, ..*k }, *t);
+        ledger.add(
+            Key {
+                engine: io.engine,
+                ..*k
+            },
+            *t,
+        );
     }
     r.ledger = ledger;
     Ok(r)

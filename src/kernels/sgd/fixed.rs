@@ -73,7 +73,10 @@ pub fn width(q: QFormat) -> u32 {
 
 /// The smallest of 8, 16, 32, 64 bits holding `q`.
 pub fn storage_bits(q: QFormat) -> u32 {
-    [8, 16, 32, 64].into_iter().find(|&b| b >= width(q)).unwrap_or(64)
+    [8, 16, 32, 64]
+        .into_iter()
+        .find(|&b| b >= width(q))
+        .unwrap_or(64)
 }
 
 /// v / 2^shift rounded by `mode` (a negative shift multiplies exactly). Stochastic
@@ -95,7 +98,11 @@ pub fn round_shift(v: i128, shift: i32, mode: Rounding, lfsr: &mut Lfsr) -> i128
         }
         Rounding::Stochastic => {
             let r = i128::from(lfsr.draw());
-            let r = if k <= 32 { r & ((1 << k) - 1) } else { r << (k - 32) };
+            let r = if k <= 32 {
+                r & ((1 << k) - 1)
+            } else {
+                r << (k - 32)
+            };
             (v + r) >> k
         }
     }
@@ -141,7 +148,12 @@ pub fn sigmoid_lut(spec: &FixedSpec) -> Vec<i64> {
     (0..n)
         .map(|i| {
             let x = -SIGMOID_RANGE + (f64::from(i) + 0.5) * w;
-            from_real(1.0 / (1.0 + libm::exp(-x)), spec.acc.frac_bits, width(spec.acc), &mut c)
+            from_real(
+                1.0 / (1.0 + libm::exp(-x)),
+                spec.acc.frac_bits,
+                width(spec.acc),
+                &mut c,
+            )
         })
         .collect()
 }
@@ -157,7 +169,11 @@ pub fn sigmoid(z: i64, lut: &[i64], spec: &FixedSpec) -> i64 {
         return 0;
     }
     let shift = fa + 4 - spec.sigmoid_bits as i32;
-    let i = if shift >= 0 { (z - lo) >> shift } else { (z - lo) << -shift };
+    let i = if shift >= 0 {
+        (z - lo) >> shift
+    } else {
+        (z - lo) << -shift
+    };
     if i >= lut.len() as i128 {
         return 1i64 << fa;
     }
@@ -167,9 +183,17 @@ pub fn sigmoid(z: i64, lut: &[i64], spec: &FixedSpec) -> i64 {
 impl FixedSpec {
     /// Checks the formats, the labels' representability and the step constants' range.
     pub fn validate(&self, params: &SgdParams, hypers: &[Hyper]) -> Result<(), SgdError> {
-        for (what, q) in [("data", self.data), ("model", self.model), ("accumulator", self.acc)] {
+        for (what, q) in [
+            ("data", self.data),
+            ("model", self.model),
+            ("accumulator", self.acc),
+        ] {
             if width(q) > 64 {
-                return Err(SgdError::QFormat { what, q, bits: width(q) });
+                return Err(SgdError::QFormat {
+                    what,
+                    q,
+                    bits: width(q),
+                });
             }
         }
         if params.loss != Loss::Squared && self.data.int_bits == 0 {
@@ -185,20 +209,31 @@ impl FixedSpec {
             ));
         }
         if !(1..=16).contains(&self.sigmoid_bits) {
-            return Err(SgdError::Param(format!("sigmoid table bits {} must be within 1..=16", self.sigmoid_bits)));
+            return Err(SgdError::Param(format!(
+                "sigmoid table bits {} must be within 1..=16",
+                self.sigmoid_bits
+            )));
         }
         if self.rounding == Rounding::Stochastic && self.lfsr_seed == 0 {
             return Err(SgdError::Param("the LFSR seed must be non-zero".into()));
         }
-        if hypers.iter().any(|h| h.step.eta >= 256.0 || h.step.eta * h.l2 >= 256.0) {
-            return Err(SgdError::Param("fixed point needs η and η·λ below 256".into()));
+        if hypers
+            .iter()
+            .any(|h| h.step.eta >= 256.0 || h.step.eta * h.l2 >= 256.0)
+        {
+            return Err(SgdError::Param(
+                "fixed point needs η and η·λ below 256".into(),
+            ));
         }
         Ok(())
     }
 
     /// The model's element type.
     pub fn model_elem(&self) -> ModelElem {
-        ModelElem::Fixed { bits: storage_bits(self.model), q: self.model }
+        ModelElem::Fixed {
+            bits: storage_bits(self.model),
+            q: self.model,
+        }
     }
 }
 
@@ -226,7 +261,10 @@ impl FixedTrainer {
         let mut overflow = OverflowCounts::default();
         let mut x = Vec::with_capacity(data.rows() * (d + 1));
         for (row, &y) in data.features.rows().into_iter().zip(data.labels.iter()) {
-            x.extend(row.iter().map(|&v| from_real(f64::from(v), fd, bd, &mut overflow.data)));
+            x.extend(
+                row.iter()
+                    .map(|&v| from_real(f64::from(v), fd, bd, &mut overflow.data)),
+            );
             x.push(from_real(f64::from(y), fd, bd, &mut overflow.data));
         }
         let m = d + usize::from(bias);
@@ -247,13 +285,22 @@ impl FixedTrainer {
     /// Adds sample `r`'s gradient; returns z as a real.
     pub fn sample(&mut self, r: usize) -> f64 {
         let s = self.spec;
-        let (fd, fm, fa) = (s.data.frac_bits as i32, s.model.frac_bits as i32, s.acc.frac_bits as i32);
+        let (fd, fm, fa) = (
+            s.data.frac_bits as i32,
+            s.model.frac_bits as i32,
+            s.acc.frac_bits as i32,
+        );
         let (ba, ov, rm) = (width(s.acc), s.overflow, s.rounding);
         let row = &self.x[r * (self.d + 1)..(r + 1) * (self.d + 1)];
         let (x, y) = (&row[..self.d], row[self.d]);
         let mut acc: i64 = 0;
         for (&xj, &wj) in x.iter().zip(&self.w) {
-            let p = round_shift(i128::from(xj) * i128::from(wj), fd + fm - fa, rm, &mut self.lfsr);
+            let p = round_shift(
+                i128::from(xj) * i128::from(wj),
+                fd + fm - fa,
+                rm,
+                &mut self.lfsr,
+            );
             acc = fit(i128::from(acc) + p, ba, ov, &mut self.overflow.dot);
         }
         if self.bias {
@@ -264,9 +311,12 @@ impl FixedTrainer {
         let ya = round_shift(i128::from(y), fd - fa, rm, &mut self.lfsr);
         let g = match self.loss {
             Loss::Squared => fit(i128::from(z) - ya, ba, ov, &mut self.overflow.grad),
-            Loss::Logistic => {
-                fit(i128::from(sigmoid(z, &self.lut, &s)) - ya, ba, ov, &mut self.overflow.grad)
-            }
+            Loss::Logistic => fit(
+                i128::from(sigmoid(z, &self.lut, &s)) - ya,
+                ba,
+                ov,
+                &mut self.overflow.grad,
+            ),
             Loss::Hinge => {
                 let one = 1i128 << fa;
                 let margin = if y > 0 { i128::from(z) } else { -i128::from(z) };
@@ -282,7 +332,12 @@ impl FixedTrainer {
             *gj = fit(i128::from(*gj) + p, ba, ov, &mut self.overflow.grad);
         }
         if self.bias {
-            self.g[self.d] = fit(i128::from(self.g[self.d]) + i128::from(g), ba, ov, &mut self.overflow.grad);
+            self.g[self.d] = fit(
+                i128::from(self.g[self.d]) + i128::from(g),
+                ba,
+                ov,
+                &mut self.overflow.grad,
+            );
         }
         z as f64 / libm::exp2(f64::from(fa))
     }
@@ -301,7 +356,12 @@ impl FixedTrainer {
             let t1 = (sc * i128::from(self.g[j])) << (top - fa - STEP_FRAC);
             let t2 = (r * i128::from(self.w[j])) << (top - fm - STEP_FRAC);
             let delta = round_shift(t1 + t2, (top - fm) as i32, s.rounding, &mut self.lfsr);
-            self.w[j] = fit(i128::from(self.w[j]) - delta, bm, s.overflow, &mut self.overflow.model);
+            self.w[j] = fit(
+                i128::from(self.w[j]) - delta,
+                bm,
+                s.overflow,
+                &mut self.overflow.model,
+            );
             self.g[j] = 0;
         }
     }

@@ -32,7 +32,9 @@ pub fn naive_sgd<T: Real>(
         for mb in idx.chunks(batch) {
             let mut g = vec![T::ZERO; w.len()];
             for &r in mb {
-                let x: Vec<T> = (0..d).map(|j| fl(T::from_f32(data.features[[r, j]]))).collect();
+                let x: Vec<T> = (0..d)
+                    .map(|j| fl(T::from_f32(data.features[[r, j]])))
+                    .collect();
                 let mut lane = vec![T::ZERO; lanes];
                 for j in 0..d {
                     lane[j % lanes] = fl(lane[j % lanes].add(fl(x[j].mul(w[j]))));

@@ -35,14 +35,20 @@ impl SgdData {
             match table.column(name).map(|c| &c.data) {
                 Some(ColumnData::F32(v)) => Ok(v),
                 Some(_) => Err(SgdError::Column(format!("column `{name}` is not f32"))),
-                None => Err(SgdError::Column(format!("no column `{name}` in table `{}`", table.name))),
+                None => Err(SgdError::Column(format!(
+                    "no column `{name}` in table `{}`",
+                    table.name
+                ))),
             }
         };
         let n = table.rows();
         let cols: Vec<&Vec<f32>> = features.iter().map(|f| col(f)).collect::<Result<_, _>>()?;
         let mut x = Array2::<f32>::zeros((n, cols.len()));
         for (j, c) in cols.iter().enumerate() {
-            x.column_mut(j).iter_mut().zip(c.iter()).for_each(|(o, v)| *o = *v);
+            x.column_mut(j)
+                .iter_mut()
+                .zip(c.iter())
+                .for_each(|(o, v)| *o = *v);
         }
         Ok(SgdData {
             features: x,
@@ -228,7 +234,9 @@ impl Model {
                     ModelElem::Fixed { q, .. } => q.frac_bits,
                     _ => 0,
                 };
-                v.iter().map(|&x| x as f64 / libm::exp2(f64::from(f))).collect()
+                v.iter()
+                    .map(|&x| x as f64 / libm::exp2(f64::from(f)))
+                    .collect()
             }
         }
     }
@@ -240,7 +248,9 @@ impl Model {
             Model::F64(v) => v.iter().flat_map(|x| x.to_le_bytes()).collect(),
             Model::Fixed(v, ModelElem::Fixed { bits, .. }) => {
                 let b = (*bits / 8) as usize;
-                v.iter().flat_map(|x| x.to_le_bytes()[..b].to_vec()).collect()
+                v.iter()
+                    .flat_map(|x| x.to_le_bytes()[..b].to_vec())
+                    .collect()
             }
             Model::Fixed(v, _) => v.iter().flat_map(|x| x.to_le_bytes()).collect(),
         }
@@ -362,21 +372,39 @@ pub enum SgdError {
 }
 
 /// Checks `data` against `params` and `expected_dims` (when the job states d).
-pub fn validate(data: &SgdData, params: &SgdParams, expected_dims: Option<usize>) -> Result<(), SgdError> {
+pub fn validate(
+    data: &SgdData,
+    params: &SgdParams,
+    expected_dims: Option<usize>,
+) -> Result<(), SgdError> {
     let (n, d) = (data.rows(), data.dims());
     if let Some(e) = expected_dims.filter(|&e| e != d) {
-        return Err(SgdError::FeatureCount { data: d, expected: e });
+        return Err(SgdError::FeatureCount {
+            data: d,
+            expected: e,
+        });
     }
     if data.labels.len() != n {
-        return Err(SgdError::Param(format!("{} labels for {n} rows", data.labels.len())));
+        return Err(SgdError::Param(format!(
+            "{} labels for {n} rows",
+            data.labels.len()
+        )));
     }
     for (r, row) in data.features.rows().into_iter().enumerate() {
         if let Some((c, &v)) = row.iter().enumerate().find(|(_, v)| !v.is_finite()) {
-            return Err(SgdError::NotFinite { row: r, column: c, value: v });
+            return Err(SgdError::NotFinite {
+                row: r,
+                column: c,
+                value: v,
+            });
         }
         let y = data.labels[r];
         if !y.is_finite() {
-            return Err(SgdError::NotFinite { row: r, column: d, value: y });
+            return Err(SgdError::NotFinite {
+                row: r,
+                column: d,
+                value: y,
+            });
         }
         let (ok, allowed) = match params.loss {
             Loss::Squared => (true, ""),
@@ -384,14 +412,24 @@ pub fn validate(data: &SgdData, params: &SgdParams, expected_dims: Option<usize>
             Loss::Hinge => (y == -1.0 || y == 1.0, "{-1, +1}"),
         };
         if !ok {
-            return Err(SgdError::Label { row: r, value: y, loss: params.loss.name(), allowed });
+            return Err(SgdError::Label {
+                row: r,
+                value: y,
+                loss: params.loss.name(),
+                allowed,
+            });
         }
     }
     if n == 0 || params.batch == 0 || params.batch > n {
-        return Err(SgdError::Param(format!("minibatch size {} must be within 1..={n}", params.batch)));
+        return Err(SgdError::Param(format!(
+            "minibatch size {} must be within 1..={n}",
+            params.batch
+        )));
     }
     if params.epochs == 0 || params.block_epochs == 0 || params.engines.engines() == 0 {
-        return Err(SgdError::Param("epochs, block epochs and engines must be at least 1".into()));
+        return Err(SgdError::Param(
+            "epochs, block epochs and engines must be at least 1".into(),
+        ));
     }
     let hypers: Vec<Hyper> = match &params.engines {
         EngineMode::Independent { sweep } => sweep.clone(),
@@ -408,7 +446,9 @@ pub fn validate(data: &SgdData, params: &SgdParams, expected_dims: Option<usize>
     }
     if let EngineMode::Averaging { engines } = params.engines {
         if engines as usize > n {
-            return Err(SgdError::Param(format!("{engines} averaging engines for {n} rows")));
+            return Err(SgdError::Param(format!(
+                "{engines} averaging engines for {n} rows"
+            )));
         }
     }
     match &params.numeric {

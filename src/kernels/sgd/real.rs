@@ -108,7 +108,14 @@ impl<'a, T: Real, const FTZ: bool> FloatTrainer<'a, T, FTZ> {
     /// A zero model.
     pub fn new(data: &'a SgdData, loss: Loss, lanes: u32, bias: bool) -> Self {
         let m = data.dims() + usize::from(bias);
-        FloatTrainer { data, loss, lanes, bias, w: vec![T::ZERO; m], g: vec![T::ZERO; m] }
+        FloatTrainer {
+            data,
+            loss,
+            lanes,
+            bias,
+            w: vec![T::ZERO; m],
+            g: vec![T::ZERO; m],
+        }
     }
 
     #[inline(always)]
