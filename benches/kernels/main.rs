@@ -3,10 +3,11 @@
 use criterion::{criterion_group, criterion_main};
 
 mod scan;
+mod sgd;
 
 criterion_group! {
     name = kernels;
     config = criterion::Criterion::default().sample_size(10);
-    targets = scan::bench
+    targets = scan::bench, sgd::bench
 }
 criterion_main!(kernels);

@@ -5,4 +5,5 @@ pub mod calibrate;
 pub mod host;
 pub mod interleave;
 pub mod scan;
+pub mod sgd;
 pub mod stats;

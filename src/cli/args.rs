@@ -90,6 +90,40 @@ pub struct GenArgs {
 pub enum GenKind {
     /// One value column with a requested selectivity for `lo <= v < hi`.
     Scan(GenScanArgs),
+    /// Dense features and labels for the SGD kernel, with known true weights.
+    Sgd(GenSgdArgs),
+}
+
+/// `weir gen sgd`.
+#[derive(Debug, Args)]
+pub struct GenSgdArgs {
+    /// Samples.
+    #[arg(long, default_value_t = 1 << 16)]
+    pub rows: u64,
+    /// Features per sample.
+    #[arg(long, default_value_t = 16)]
+    pub dims: usize,
+    /// Labels: regression, logistic or margin.
+    #[arg(long, default_value = "regression")]
+    pub labels: String,
+    /// Per-feature scales, comma-separated, repeated cyclically.
+    #[arg(long, value_delimiter = ',', default_value = "1")]
+    pub scale: Vec<f64>,
+    /// Noise standard deviation.
+    #[arg(long, default_value_t = 0.1)]
+    pub noise: f64,
+    /// True bias.
+    #[arg(long, default_value_t = 0.0)]
+    pub bias: f64,
+    /// Seed.
+    #[arg(long, default_value_t = 1)]
+    pub seed: u64,
+    /// Output prefix: writes PREFIX.x.npy (n × d f32), PREFIX.y.npy and PREFIX.weights.json.
+    #[arg(long, value_name = "PREFIX")]
+    pub out: PathBuf,
+    /// Replace existing files.
+    #[arg(long)]
+    pub force: bool,
 }
 
 /// `weir gen scan`.
@@ -163,6 +197,43 @@ pub struct BenchArgs {
 pub enum BenchKind {
     /// Predicate scan of one u32 column, row-id output.
     Scan(BenchScanArgs),
+    /// One epoch of squared-loss minibatch SGD per engine, one engine per thread.
+    Sgd(BenchSgdArgs),
+}
+
+/// `weir bench sgd`.
+#[derive(Debug, Args)]
+pub struct BenchSgdArgs {
+    /// Thread counts (= engines), comma-separated (default: 1 and all cores).
+    #[arg(long, value_delimiter = ',')]
+    pub threads: Option<Vec<usize>>,
+    /// Feature counts d, comma-separated.
+    #[arg(long, value_delimiter = ',', default_value = "16,64,256,1024")]
+    pub dims: Vec<usize>,
+    /// Minibatch sizes, comma-separated.
+    #[arg(long, value_delimiter = ',', default_value = "1,16,256")]
+    pub batch: Vec<usize>,
+    /// Samples (fewer for large d, keeping the data within --max-mib).
+    #[arg(long, default_value_t = 1 << 20)]
+    pub rows: u64,
+    /// Largest dataset in MiB.
+    #[arg(long, default_value_t = 1024)]
+    pub max_mib: u64,
+    /// Modes: f32 (16-lane tree), f32-seq, f64, fixed (Q7.8 data, Q7.24 model, Q15.24 accumulator, nearest-even).
+    #[arg(long, value_delimiter = ',', default_value = "f32")]
+    pub modes: Vec<String>,
+    /// Timed runs per point, each after a read pass over the same bytes, after a warm-up.
+    #[arg(long, default_value_t = 5)]
+    pub runs: usize,
+    /// Write results to PREFIX.csv, PREFIX.json and PREFIX.svg.
+    #[arg(long, value_name = "PREFIX")]
+    pub out: Option<PathBuf>,
+    /// Also save each dataset as PREFIX-d{d}.x.npy and .y.npy (for benches/compare/sgd.py).
+    #[arg(long, value_name = "PREFIX")]
+    pub save_npy: Option<PathBuf>,
+    /// Replace existing output files.
+    #[arg(long)]
+    pub force: bool,
 }
 
 /// `weir bench scan`.

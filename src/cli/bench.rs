@@ -5,7 +5,7 @@ use weir::bench::scan::{self as scan_bench, ScanBenchParams};
 use weir::tables::TextTable;
 use weir::{Error, Result};
 
-use super::args::{BenchArgs, BenchKind, BenchScanArgs, CalibrateArgs};
+use super::args::{BenchArgs, BenchKind, BenchScanArgs, BenchSgdArgs, CalibrateArgs};
 use super::gen::write_file_atomic;
 use super::Outcome;
 
@@ -119,6 +119,7 @@ pub fn calibrate(a: CalibrateArgs) -> Result<Outcome> {
 pub fn bench(a: BenchArgs) -> Result<Outcome> {
     match a.kind {
         BenchKind::Scan(s) => bench_scan(s),
+        BenchKind::Sgd(s) => bench_sgd(s),
     }
 }
 
@@ -270,6 +271,157 @@ fn bench_scan(a: BenchScanArgs) -> Result<Outcome> {
         write_file_atomic(&prefix.with_extension("json"), text.as_bytes(), a.force)?;
         let svg = scan_bench::chart(&points, a.rows).to_svg();
         write_file_atomic(&prefix.with_extension("svg"), svg.as_bytes(), a.force)?;
+        say!(
+            "saved {}, {} and {}",
+            prefix.with_extension("csv").display(),
+            prefix.with_extension("json").display(),
+            prefix.with_extension("svg").display()
+        );
+    }
+    Ok(Outcome::Ok)
+}
+
+fn sgd_mode(name: &str) -> Result<weir::kernels::sgd::Numeric> {
+    use weir::kernels::sgd::{FixedSpec, Numeric, Overflow, Rounding};
+    use weir::table::QFormat;
+    let q = |int_bits, frac_bits| QFormat {
+        int_bits,
+        frac_bits,
+    };
+    Ok(match name {
+        "f32" => Numeric::F32 {
+            lanes: 16,
+            ftz: false,
+        },
+        "f32-seq" => Numeric::F32 {
+            lanes: 1,
+            ftz: false,
+        },
+        "f64" => Numeric::F64 { lanes: 16 },
+        "fixed" => Numeric::Fixed(FixedSpec {
+            data: q(7, 8),
+            model: q(7, 24),
+            acc: q(15, 24),
+            rounding: Rounding::NearestEven,
+            overflow: Overflow::Saturate,
+            lfsr_seed: 1,
+            sigmoid_bits: 8,
+        }),
+        o => {
+            return Err(Error::input(format!(
+                "--modes `{o}`: expected f32, f32-seq, f64 or fixed"
+            )))
+        }
+    })
+}
+
+fn bench_sgd(a: BenchSgdArgs) -> Result<Outcome> {
+    use weir::bench::sgd as sgd_bench;
+    let threads = a.threads.clone().unwrap_or_else(|| {
+        if all_threads() > 1 {
+            vec![1, all_threads()]
+        } else {
+            vec![1]
+        }
+    });
+    if threads.contains(&0)
+        || a.runs == 0
+        || a.rows == 0
+        || a.dims.contains(&0)
+        || a.batch.contains(&0)
+    {
+        return Err(Error::input(
+            "--threads, --runs, --rows, --dims and --batch must be at least 1",
+        ));
+    }
+    let outputs: Vec<std::path::PathBuf> = a
+        .out
+        .iter()
+        .flat_map(|p| ["csv", "json", "svg"].map(|e| p.with_extension(e)))
+        .collect();
+    if let Some(p) = outputs.iter().find(|p| p.exists() && !a.force) {
+        return Err(Error::exists(format!(
+            "{} exists; add --force to replace it",
+            p.display()
+        )));
+    }
+    let params = sgd_bench::SgdBenchParams {
+        dims: a.dims.clone(),
+        batches: a.batch.clone(),
+        rows: a.rows,
+        max_bytes: a.max_mib << 20,
+        threads,
+        modes: a.modes.iter().map(|m| sgd_mode(m)).collect::<Result<_>>()?,
+        runs: a.runs,
+    };
+    let total =
+        params.dims.len() * params.batches.len() * params.threads.len() * params.modes.len();
+    let pb = super::progress(total as u64, "sgd bench");
+    let mut save_err = None;
+    let points = sgd_bench::bench_sgd(
+        &params,
+        &mut |done, _| pb.set_position(done as u64),
+        &mut |d, data| {
+            if let Some(p) = &a.save_npy {
+                let prefix = p.with_file_name(format!(
+                    "{}-d{d}",
+                    p.file_name().unwrap_or_default().to_string_lossy()
+                ));
+                if let Err(e) = super::gen::sgd_npy(&prefix, data, a.force) {
+                    save_err.get_or_insert(e);
+                }
+            }
+        },
+    )
+    .map_err(|e| Error::input(e.to_string()))?;
+    pb.finish_and_clear();
+    if let Some(e) = save_err {
+        return Err(e);
+    }
+    say!("one epoch of squared-loss SGD per engine (one per thread, all over one shared dataset), {} runs each after a read pass over the same bytes", a.runs);
+    let mut t = TextTable::new(&[
+        "d",
+        "B",
+        "rows",
+        "threads",
+        "mode",
+        "median ms",
+        "Msamples/s",
+        "GB/s",
+        "read GB/s",
+        "of read",
+        "spread",
+    ]);
+    for p in &points {
+        t.row(vec![
+            p.dims.to_string(),
+            p.batch.to_string(),
+            p.rows.to_string(),
+            p.threads.to_string(),
+            p.mode.clone(),
+            format!("{:.2}", p.time.median_s * 1e3),
+            format!("{:.1}", p.samples_per_s / 1e6),
+            format!("{:.2}", p.gbps),
+            format!("{:.2}", p.read_gbps),
+            format!("{:.0}%", p.ratio * 100.0),
+            format!("{:.0}–{:.0}%", p.ratio_min * 100.0, p.ratio_max * 100.0),
+        ]);
+    }
+    say!("{}", t.render().trim_end());
+    if let Some(prefix) = &a.out {
+        write_file_atomic(
+            &prefix.with_extension("csv"),
+            sgd_bench::to_csv(&points).as_bytes(),
+            a.force,
+        )?;
+        let json = serde_json::json!({ "bench": "sgd", "points": points });
+        let text = serde_json::to_string_pretty(&json).expect("json") + "\n";
+        write_file_atomic(&prefix.with_extension("json"), text.as_bytes(), a.force)?;
+        write_file_atomic(
+            &prefix.with_extension("svg"),
+            sgd_bench::chart(&points).to_svg().as_bytes(),
+            a.force,
+        )?;
         say!(
             "saved {}, {} and {}",
             prefix.with_extension("csv").display(),

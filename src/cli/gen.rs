@@ -5,13 +5,14 @@ use std::io::Write;
 use weir::gen::{ColumnGen, Dist, Shape, Skew, TableGen};
 use weir::{Error, Result};
 
-use super::args::{GenArgs, GenKind, GenScanArgs};
+use super::args::{GenArgs, GenKind, GenScanArgs, GenSgdArgs};
 use super::Outcome;
 
 /// `weir gen`.
 pub fn gen(a: GenArgs) -> Result<Outcome> {
     match a.kind {
         GenKind::Scan(s) => gen_scan(s),
+        GenKind::Sgd(s) => gen_sgd(s),
     }
 }
 
@@ -97,6 +98,77 @@ fn gen_scan(a: GenScanArgs) -> Result<Outcome> {
         a.hi,
         a.selectivity * 100.0,
         hits as f64 * 100.0 / a.rows.max(1) as f64
+    );
+    Ok(Outcome::Ok)
+}
+
+/// `PREFIX.x.npy` (n × d `f32`) and `PREFIX.y.npy` of `data`.
+pub fn sgd_npy(
+    prefix: &std::path::Path,
+    data: &weir::kernels::sgd::SgdData,
+    force: bool,
+) -> Result<()> {
+    let (n, d) = (data.rows() as u64, data.dims() as u64);
+    let x: Vec<u8> = data.features.iter().flat_map(|v| v.to_le_bytes()).collect();
+    let y: Vec<u8> = data.labels.iter().flat_map(|v| v.to_le_bytes()).collect();
+    for (ext, shape, bytes) in [("x.npy", vec![n, d], x), ("y.npy", vec![n], y)] {
+        let path = prefix.with_extension(ext);
+        let mut v = Vec::new();
+        weir::npy::write_npy(&mut v, "<f4", &shape, &bytes).map_err(|e| Error::io(&path, e))?;
+        write_file_atomic(&path, &v, force)?;
+    }
+    Ok(())
+}
+
+fn gen_sgd(a: GenSgdArgs) -> Result<Outcome> {
+    use weir::gen::sgd::{Labels, SgdGen};
+    let labels = match a.labels.as_str() {
+        "regression" => Labels::Regression,
+        "logistic" => Labels::Logistic,
+        "margin" => Labels::Margin,
+        o => {
+            return Err(Error::input(format!(
+                "--labels `{o}`: expected regression, logistic or margin"
+            )))
+        }
+    };
+    if a.rows == 0 || a.dims == 0 || a.scale.iter().any(|s| !s.is_finite()) || !a.noise.is_finite()
+    {
+        return Err(Error::input(
+            "--rows and --dims must be at least 1; --scale and --noise finite",
+        ));
+    }
+    let g = SgdGen {
+        rows: a.rows,
+        dims: a.dims,
+        seed: a.seed,
+        scale: a.scale.clone(),
+        noise: a.noise,
+        bias: a.bias,
+        labels,
+    };
+    let out = g.generate();
+    let wpath = a.out.with_extension("weights.json");
+    if wpath.exists() && !a.force {
+        return Err(Error::exists(format!(
+            "{} exists; add --force to replace it",
+            wpath.display()
+        )));
+    }
+    sgd_npy(&a.out, &out.data, a.force)?;
+    let json = serde_json::json!({ "weights": out.weights, "bias": out.bias, "seed": a.seed, "labels": a.labels });
+    write_file_atomic(
+        &wpath,
+        (serde_json::to_string_pretty(&json).expect("json") + "\n").as_bytes(),
+        a.force,
+    )?;
+    say!(
+        "wrote {} samples of {} f32 features to {} and {}; true weights in {}",
+        a.rows,
+        a.dims,
+        a.out.with_extension("x.npy").display(),
+        a.out.with_extension("y.npy").display(),
+        wpath.display()
     );
     Ok(Outcome::Ok)
 }

@@ -4,6 +4,7 @@
 
 pub mod columns;
 pub mod rng;
+pub mod sgd;
 pub mod telemetry;
 
 pub use columns::{ColumnGen, Dist, Skew};

@@ -6,6 +6,7 @@ pub mod isa;
 pub mod predicate;
 pub mod scan;
 pub mod seam;
+pub mod sgd;
 
 use std::sync::Arc;
 

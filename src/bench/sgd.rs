@@ -1,0 +1,285 @@
+//! The SGD benchmark: one epoch of squared-loss minibatch SGD over n × d `f32` samples,
+//! one engine per thread (each over the whole shared dataset, as replicated engines
+//! would), timed interleaved with a read pass over the same bytes by the same threads:
+//! reference, kernel, reference, kernel, … so both see the same machine state. Reported
+//! as samples/s, GB/s of records consumed, and the ratio of medians kernel/reference with
+//! the spread of per-pair ratios.
+
+use std::time::Instant;
+
+use rayon::prelude::*;
+use serde::Serialize;
+
+use super::stats::{summarize, Summary};
+use crate::gen::sgd::{Labels, SgdGen};
+use crate::kernels::sgd::*;
+use crate::plot::{Chart, Series};
+
+/// What to measure.
+#[derive(Debug, Clone)]
+pub struct SgdBenchParams {
+    /// Feature counts d.
+    pub dims: Vec<usize>,
+    /// Minibatch sizes B.
+    pub batches: Vec<usize>,
+    /// Samples n (capped so the data stays at or under `max_bytes`).
+    pub rows: u64,
+    /// Largest dataset in bytes.
+    pub max_bytes: u64,
+    /// Thread counts (= engines).
+    pub threads: Vec<usize>,
+    /// Arithmetic modes to time.
+    pub modes: Vec<Numeric>,
+    /// Timed kernel runs per point (each paired with a reference run), after a warm-up.
+    pub runs: usize,
+}
+
+/// One measured point.
+#[derive(Debug, Clone, Serialize)]
+pub struct SgdPoint {
+    /// Features.
+    pub dims: usize,
+    /// Minibatch size.
+    pub batch: usize,
+    /// Samples.
+    pub rows: u64,
+    /// Threads and engines.
+    pub threads: usize,
+    /// Arithmetic mode.
+    pub mode: String,
+    /// Kernel timing (one epoch of every engine).
+    #[serde(flatten)]
+    pub time: Summary,
+    /// Samples per second over all engines.
+    pub samples_per_s: f64,
+    /// Record bytes consumed per second over all engines, GB/s.
+    pub gbps: f64,
+    /// The interleaved read pass over the same bytes, GB/s at its median.
+    pub read_gbps: f64,
+    /// Median kernel GB/s over median read GB/s.
+    pub ratio: f64,
+    /// Smallest and largest ratio of a kernel run to its paired read run.
+    pub ratio_min: f64,
+    /// See `ratio_min`.
+    pub ratio_max: f64,
+    /// Engine 0's final model (for comparing with another implementation).
+    pub model: Vec<f64>,
+}
+
+/// The name of a mode in tables.
+pub fn mode_name(n: &Numeric) -> String {
+    match n {
+        Numeric::F32 { lanes, ftz } => format!("f32 L={lanes}{}", if *ftz { " ftz" } else { "" }),
+        Numeric::F64 { lanes } => format!("f64 L={lanes}"),
+        Numeric::Fixed(s) => format!("fixed {}/{}/{}", s.data, s.model, s.acc),
+    }
+}
+
+/// The bench's dataset: `rows` samples of `dims` features, regression labels.
+pub fn bench_data(rows: u64, dims: usize) -> SgdData {
+    SgdGen {
+        rows,
+        dims,
+        seed: 1,
+        scale: vec![1.0],
+        noise: 0.1,
+        bias: 0.0,
+        labels: Labels::Regression,
+    }
+    .generate()
+    .data
+}
+
+/// The bench's parameters: squared loss, one epoch, input order, `threads` engines.
+pub fn bench_params(batch: usize, numeric: Numeric, threads: usize) -> SgdParams {
+    let h = Hyper {
+        step: Step {
+            eta: 1e-3,
+            decay: 0.0,
+        },
+        l2: 0.0,
+    };
+    SgdParams {
+        loss: Loss::Squared,
+        batch,
+        hyper: h,
+        bias: true,
+        epochs: 1,
+        order: Order::Input,
+        tol: None,
+        numeric,
+        engines: EngineMode::Independent {
+            sweep: vec![h; threads],
+        },
+        capacity: None,
+        block_epochs: 1,
+        snapshots: 0,
+        pad_records: false,
+    }
+}
+
+/// Engine placements for `n` engines (64-byte words, separate channels).
+pub fn bench_io(n: usize) -> Vec<SgdIo> {
+    (0..n as u32)
+        .map(|e| SgdIo {
+            engine: e,
+            word_bytes: 64,
+            channel: e,
+            data_base: 0,
+            model_base: 0,
+        })
+        .collect()
+}
+
+/// `threads` threads each summing every feature and label once (the bytes one epoch of
+/// each engine reads).
+fn read_pass(data: &SgdData, threads: usize) -> f32 {
+    let x = data.features.as_slice().expect("row-major");
+    (0..threads)
+        .into_par_iter()
+        .map(|_| {
+            let mut acc = [0f32; 16];
+            let c = x.chunks_exact(16);
+            let tail: f32 = c.remainder().iter().sum();
+            for ch in c {
+                for l in 0..16 {
+                    acc[l] += ch[l];
+                }
+            }
+            acc.iter().sum::<f32>() + tail + data.labels.iter().sum::<f32>()
+        })
+        .sum()
+}
+
+/// Runs the benchmark; `progress(done, total)` after each point; `data_for(d, data)`
+/// receives each dataset once (for saving it).
+pub fn bench_sgd(
+    p: &SgdBenchParams,
+    progress: &mut dyn FnMut(usize, usize),
+    data_for: &mut dyn FnMut(usize, &SgdData),
+) -> Result<Vec<SgdPoint>, SgdError> {
+    let total = p.dims.len() * p.batches.len() * p.threads.len() * p.modes.len();
+    let mut points = Vec::new();
+    for &d in &p.dims {
+        let rows = p.rows.min(p.max_bytes / ((d as u64 + 1) * 4)).max(1);
+        let data = bench_data(rows, d);
+        data_for(d, &data);
+        validate(
+            &data,
+            &bench_params(1, Numeric::F64 { lanes: 1 }, 1),
+            Some(d),
+        )?;
+        let bytes = rows * (d as u64 + 1) * 4;
+        for &t in &p.threads {
+            let pool = rayon::ThreadPoolBuilder::new()
+                .num_threads(t)
+                .build()
+                .expect("thread pool");
+            for numeric in &p.modes {
+                for &b in &p.batches {
+                    let params = bench_params(b.min(rows as usize), numeric.clone(), t);
+                    let io = bench_io(t);
+                    let (mut kt, mut rt, mut model) = (Vec::new(), Vec::new(), Vec::new());
+                    pool.install(|| -> Result<(), SgdError> {
+                        for run in 0..=p.runs {
+                            let s = Instant::now();
+                            std::hint::black_box(read_pass(&data, t));
+                            let r = s.elapsed().as_secs_f64();
+                            let s = Instant::now();
+                            let r0 = std::hint::black_box(train_validated(&data, &params, &io)?);
+                            let k = s.elapsed().as_secs_f64();
+                            model = r0[0].model.to_f64();
+                            if run > 0 {
+                                rt.push(r);
+                                kt.push(k);
+                            }
+                        }
+                        Ok(())
+                    })?;
+                    let (time, rtime) = (summarize(&kt), summarize(&rt));
+                    let all = (bytes * t as u64) as f64;
+                    let ratios: Vec<f64> = kt.iter().zip(&rt).map(|(k, r)| r / k).collect();
+                    points.push(SgdPoint {
+                        dims: d,
+                        batch: b,
+                        rows,
+                        threads: t,
+                        mode: mode_name(numeric),
+                        samples_per_s: (rows * t as u64) as f64 / time.median_s,
+                        gbps: all / time.median_s / 1e9,
+                        read_gbps: all / rtime.median_s / 1e9,
+                        ratio: rtime.median_s / time.median_s,
+                        ratio_min: ratios.iter().copied().fold(f64::INFINITY, f64::min),
+                        ratio_max: ratios.iter().copied().fold(0.0, f64::max),
+                        time,
+                        model,
+                    });
+                    progress(points.len(), total);
+                }
+            }
+        }
+    }
+    Ok(points)
+}
+
+/// GB/s against d, one line per (threads, mode, B).
+pub fn chart(points: &[SgdPoint]) -> Chart {
+    let mut dims: Vec<usize> = points.iter().map(|p| p.dims).collect();
+    dims.dedup();
+    let mut keys: Vec<(usize, String, usize)> = Vec::new();
+    for p in points {
+        let k = (p.threads, p.mode.clone(), p.batch);
+        if !keys.contains(&k) {
+            keys.push(k);
+        }
+    }
+    let series = keys
+        .iter()
+        .map(|(t, m, b)| Series {
+            name: format!("{t} thr, {m}, B={b}"),
+            values: dims
+                .iter()
+                .map(|&d| {
+                    points
+                        .iter()
+                        .find(|p| p.dims == d && p.threads == *t && &p.mode == m && p.batch == *b)
+                        .map(|p| p.gbps)
+                })
+                .collect(),
+        })
+        .collect();
+    Chart {
+        title: "one epoch of squared-loss SGD, one engine per thread".into(),
+        x_label: "features d".into(),
+        y_label: "GB/s of records (median)".into(),
+        x: dims.iter().map(|d| d.to_string()).collect(),
+        series,
+        references: Vec::new(),
+    }
+}
+
+/// The points as CSV.
+pub fn to_csv(points: &[SgdPoint]) -> String {
+    let mut s = String::from("dims,batch,rows,threads,mode,runs,median_s,min_s,max_s,samples_per_s,gbps,read_gbps,ratio,ratio_min,ratio_max\n");
+    for p in points {
+        s.push_str(&format!(
+            "{},{},{},{},{},{},{:.6},{:.6},{:.6},{:.0},{:.3},{:.3},{:.3},{:.3},{:.3}\n",
+            p.dims,
+            p.batch,
+            p.rows,
+            p.threads,
+            p.mode,
+            p.time.runs,
+            p.time.median_s,
+            p.time.min_s,
+            p.time.max_s,
+            p.samples_per_s,
+            p.gbps,
+            p.read_gbps,
+            p.ratio,
+            p.ratio_min,
+            p.ratio_max
+        ));
+    }
+    s
+}

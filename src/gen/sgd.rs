@@ -1,0 +1,129 @@
+//! The SGD generator: n samples of d standard-normal features, feature j scaled by
+//! `scale[j mod len]`, true weights wⱼ ~ N(0, 1) and bias, and labels from one of three
+//! models. Every 4096-row block of every column draws from its own stream
+//! (`rng::Stream(seed, "sgd", column, block)`, columns `x0 … x{d−1}` and `y`; the true
+//! weights from column `weights`, block 0), so the bytes do not depend on thread count.
+//!
+//! Labels, with t = w·x + b computed in `f64` in feature order and ε ~ N(0, noise²):
+//! regression y = t + ε; logistic y = 1 with probability σ(t) (u < σ(t) for u uniform);
+//! margin y = +1 if t + ε ≥ 0 else −1.
+
+use ndarray::{Array1, Array2};
+use rayon::prelude::*;
+
+use super::rng::{Stream, BLOCK_ROWS};
+use crate::kernels::sgd::SgdData;
+
+/// How labels are drawn.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Labels {
+    /// y = t + ε.
+    Regression,
+    /// y ∈ {0, 1}, P(y = 1) = σ(t).
+    Logistic,
+    /// y = sign(t + ε) ∈ {−1, +1}.
+    Margin,
+}
+
+/// A seeded SGD dataset.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SgdGen {
+    /// Samples n.
+    pub rows: u64,
+    /// Features d.
+    pub dims: usize,
+    /// Seed.
+    pub seed: u64,
+    /// Per-feature scales, repeated cyclically.
+    pub scale: Vec<f64>,
+    /// Noise standard deviation.
+    pub noise: f64,
+    /// True bias.
+    pub bias: f64,
+    /// Label model.
+    pub labels: Labels,
+}
+
+/// The data and the generator's true weights.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Generated {
+    /// The dataset.
+    pub data: SgdData,
+    /// True weights (d).
+    pub weights: Vec<f64>,
+    /// True bias.
+    pub bias: f64,
+}
+
+impl SgdGen {
+    /// The true weights.
+    pub fn weights(&self) -> Vec<f64> {
+        let mut s = Stream::new(self.seed, "sgd", "weights", 0);
+        (0..self.dims).map(|_| s.normal()).collect()
+    }
+
+    /// Generates the whole dataset (blocks in parallel, joined in order).
+    pub fn generate(&self) -> Generated {
+        let w = self.weights();
+        let (n, d) = (self.rows as usize, self.dims);
+        let blocks: Vec<(Vec<f32>, Vec<f32>)> = (0..self.rows.div_ceil(BLOCK_ROWS))
+            .into_par_iter()
+            .map(|b| self.block(b, &w))
+            .collect();
+        let mut x = Vec::with_capacity(n * d);
+        let mut y = Vec::with_capacity(n);
+        for (bx, by) in blocks {
+            x.extend(bx);
+            y.extend(by);
+        }
+        Generated {
+            data: SgdData {
+                features: Array2::from_shape_vec((n, d), x).expect("n × d values"),
+                labels: Array1::from(y),
+            },
+            weights: w,
+            bias: self.bias,
+        }
+    }
+
+    fn block(&self, b: u64, w: &[f64]) -> (Vec<f32>, Vec<f32>) {
+        let lo = b * BLOCK_ROWS;
+        let len = (self.rows - lo).min(BLOCK_ROWS) as usize;
+        let d = self.dims;
+        let mut x = vec![0f32; len * d];
+        for j in 0..d {
+            let mut s = Stream::new(self.seed, "sgd", &format!("x{j}"), b);
+            let sc = self
+                .scale
+                .get(j % self.scale.len().max(1))
+                .copied()
+                .unwrap_or(1.0);
+            for r in 0..len {
+                x[r * d + j] = (s.normal() * sc) as f32;
+            }
+        }
+        let mut s = Stream::new(self.seed, "sgd", "y", b);
+        let y = (0..len)
+            .map(|r| {
+                let t = x[r * d..(r + 1) * d]
+                    .iter()
+                    .zip(w)
+                    .fold(self.bias, |a, (&xj, &wj)| a + f64::from(xj) * wj);
+                let eps = s.normal() * self.noise;
+                let u = s.unit();
+                match self.labels {
+                    Labels::Regression => (t + eps) as f32,
+                    Labels::Logistic => f32::from(u8::from(u < 1.0 / (1.0 + libm::exp(-t)))),
+                    Labels::Margin => {
+                        if t + eps >= 0.0 {
+                            1.0
+                        } else {
+                            -1.0
+                        }
+                    }
+                }
+            })
+            .collect();
+        (x, y)
+    }
+}

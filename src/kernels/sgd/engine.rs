@@ -1,0 +1,519 @@
+//! Running engines: passes, minibatches, block-wise loading, averaging, snapshots, loss
+//! per epoch, divergence, and the ledger as the engines touch memory.
+//!
+//! ```text
+//!   epoch e ─┬─ block b (rows [b·R, (b+1)·R)) ── load[k] over the host link
+//!            │    └─ block_epochs passes: order (input / shuffle of pass p)
+//!            │         └─ engine's share ─► minibatches of B ─► update, snapshot
+//!            └─ end: (averaging) mean of the engines' models; loss; divergence check
+//! ```
+//! Engines of an epoch run in parallel and are collected in index order; nothing inside
+//! an engine is parallel, so results do not depend on the thread count.
+
+use rayon::prelude::*;
+
+use super::fixed::{self, FixedTrainer};
+use super::params::*;
+use super::real::{self, FloatTrainer};
+use crate::gen::rng::Stream;
+use crate::ledger::{words_touched, Cursor, Direction, Key, Ledger, Phase, Region, Traffic};
+
+/// Loss above this many times the zero model's loss (or 1, if larger) is divergence.
+pub const BLOW_UP: f64 = 1e6;
+
+enum Trainer<'a> {
+    F32(FloatTrainer<'a, f32, false>),
+    F32Ftz(FloatTrainer<'a, f32, true>),
+    F64(FloatTrainer<'a, f64, false>),
+    Fixed(Box<FixedTrainer>),
+}
+
+macro_rules! each {
+    ($t:expr, $v:ident => $e:expr) => {
+        match $t {
+            Trainer::F32($v) => $e,
+            Trainer::F32Ftz($v) => $e,
+            Trainer::F64($v) => $e,
+            Trainer::Fixed($v) => $e,
+        }
+    };
+}
+
+impl<'a> Trainer<'a> {
+    fn new(data: &'a SgdData, p: &SgdParams) -> Trainer<'a> {
+        match p.numeric {
+            Numeric::F32 { lanes, ftz: false } => {
+                Trainer::F32(FloatTrainer::new(data, p.loss, lanes, p.bias))
+            }
+            Numeric::F32 { lanes, ftz: true } => {
+                Trainer::F32Ftz(FloatTrainer::new(data, p.loss, lanes, p.bias))
+            }
+            Numeric::F64 { lanes } => Trainer::F64(FloatTrainer::new(data, p.loss, lanes, p.bias)),
+            Numeric::Fixed(spec) => {
+                Trainer::Fixed(Box::new(FixedTrainer::new(data, spec, p.loss, p.bias)))
+            }
+        }
+    }
+    fn model(&self) -> Model {
+        each!(self, t => t.model())
+    }
+}
+
+/// Bytes of one element of the dataset image.
+fn elem_bytes(n: &Numeric) -> u64 {
+    match n {
+        Numeric::Fixed(s) => u64::from(fixed::storage_bits(s.data) / 8),
+        _ => 4,
+    }
+}
+
+/// (payload, stride) bytes of one record: d features and the label, padded to whole
+/// words when `pad`.
+fn record_shape(d: usize, p: &SgdParams, word_bytes: u64) -> (u64, u64) {
+    let payload = (d as u64 + 1) * elem_bytes(&p.numeric);
+    let stride = if p.pad_records {
+        payload.div_ceil(word_bytes) * word_bytes
+    } else {
+        payload
+    };
+    (payload, stride)
+}
+
+/// The dataset image: per record the d features then the label, little-endian (`f32`
+/// for the float modes, Q_d integers for fixed point), zero padding to whole words when
+/// the job pads records.
+pub fn record_bytes(data: &SgdData, p: &SgdParams, word_bytes: u64) -> Vec<u8> {
+    let (payload, stride) = record_shape(data.dims(), p, word_bytes);
+    let mut out = Vec::with_capacity(data.rows() * stride as usize);
+    let mut none = 0;
+    for (row, &y) in data.features.rows().into_iter().zip(data.labels.iter()) {
+        let start = out.len();
+        for v in row.iter().chain(std::iter::once(&y)) {
+            match &p.numeric {
+                Numeric::Fixed(s) => {
+                    let q = fixed::from_real(
+                        f64::from(*v),
+                        s.data.frac_bits,
+                        fixed::width(s.data),
+                        &mut none,
+                    );
+                    out.extend_from_slice(&q.to_le_bytes()[..elem_bytes(&p.numeric) as usize]);
+                }
+                _ => out.extend_from_slice(&v.to_le_bytes()),
+            }
+        }
+        debug_assert_eq!((out.len() - start) as u64, payload);
+        out.resize(start + stride as usize, 0);
+    }
+    out
+}
+
+/// Counts one engine's record reads: a cursor runs while reads are consecutive.
+struct Reads {
+    base: u64,
+    payload: u64,
+    stride: u64,
+    word_bytes: u64,
+    next: Option<u64>,
+    cursor: Cursor,
+    done: Traffic,
+}
+
+impl Reads {
+    fn new(base: u64, payload: u64, stride: u64, word_bytes: u64) -> Reads {
+        Reads {
+            base,
+            payload,
+            stride,
+            word_bytes,
+            next: None,
+            cursor: Cursor::new(base, word_bytes),
+            done: Traffic::default(),
+        }
+    }
+
+    #[inline]
+    fn read(&mut self, offset_rows: u64) {
+        let addr = self.base + offset_rows * self.stride;
+        if self.stride != self.payload {
+            self.done += Traffic {
+                bytes: self.payload,
+                words: words_touched(addr, self.payload, self.word_bytes),
+                rows: 1,
+            };
+            return;
+        }
+        if self.next != Some(addr) {
+            self.done +=
+                std::mem::replace(&mut self.cursor, Cursor::new(addr, self.word_bytes)).traffic;
+        }
+        self.cursor.touch(self.payload, 1);
+        self.next = Some(addr + self.payload);
+    }
+
+    fn take(&mut self) -> Traffic {
+        let mut t = std::mem::take(&mut self.done);
+        t += std::mem::replace(&mut self.cursor, Cursor::new(self.base, self.word_bytes)).traffic;
+        self.next = None;
+        t
+    }
+}
+
+/// One engine's state across epochs.
+struct Engine<'a> {
+    index: u32,
+    io: SgdIo,
+    hyper: Hyper,
+    trainer: Trainer<'a>,
+    updates: u64,
+    snapshots: Vec<Model>,
+    epoch_models: Vec<Model>,
+    losses: Vec<f64>,
+    /// Σ ℓ over this epoch's samples and their count.
+    loss_sum: f64,
+    samples: u64,
+    feature_bytes: Vec<u64>,
+    label_bytes: Vec<u64>,
+    ledger: Ledger,
+}
+
+/// The plan shared by all engines.
+struct Plan<'a> {
+    data: &'a SgdData,
+    p: &'a SgdParams,
+    block_rows: usize,
+    payload: u64,
+    stride: u64,
+    model_bytes: u64,
+}
+
+impl Plan<'_> {
+    fn blocks(&self) -> usize {
+        self.data.rows().div_ceil(self.block_rows)
+    }
+}
+
+/// The sample order of pass `pass` over `rows`.
+pub(crate) fn order(rows: std::ops::Range<usize>, o: Order, pass: u64) -> Vec<usize> {
+    let mut v: Vec<usize> = rows.collect();
+    if let Order::Shuffle { seed } = o {
+        let mut s = Stream::new(seed, "sgd", "order", pass);
+        for i in (1..v.len()).rev() {
+            let j = s.int_in(0, i as i128) as usize;
+            v.swap(i, j);
+        }
+    }
+    v
+}
+
+impl Engine<'_> {
+    /// One epoch over every block (its share of each pass when `share` = (k, E)).
+    fn epoch(&mut self, plan: &Plan, e: u32, share: (usize, usize)) {
+        let p = plan.p;
+        let (d, wb) = (plan.data.dims() as u64, self.io.word_bytes);
+        let phase = Phase::nth("epoch", e);
+        let mut reads = Reads::new(self.io.data_base, plan.payload, plan.stride, wb);
+        let (mut model_r, mut model_w) = (Traffic::default(), Traffic::default());
+        let model_words = words_touched(self.io.model_base, plan.model_bytes, wb);
+        let model_t = Traffic {
+            bytes: plan.model_bytes,
+            words: model_words,
+            rows: 0,
+        };
+        let (mut samples, eb) = (0u64, plan.payload / (d + 1));
+        self.loss_sum = 0.0;
+        self.samples = 0;
+        let nb = plan.blocks();
+        for b in 0..nb {
+            let start = b * plan.block_rows;
+            let rows = start..(start + plan.block_rows).min(plan.data.rows());
+            if nb > 1 || e == 0 {
+                let load = Phase::nth("load", if nb > 1 { e * nb as u32 + b as u32 } else { 0 });
+                let bytes = rows.len() as u64 * plan.stride;
+                let t = Traffic {
+                    bytes,
+                    words: words_touched(self.io.data_base, bytes, wb),
+                    rows: rows.len() as u64,
+                };
+                self.ledger.add(
+                    Key {
+                        engine: self.index,
+                        phase: load,
+                        region: Region::HostLink,
+                        channel: None,
+                        direction: Direction::Read,
+                    },
+                    t,
+                );
+                self.ledger.add(
+                    Key::device(self.index, load, self.io.channel, Direction::Write),
+                    t,
+                );
+            }
+            for k in 0..p.block_epochs {
+                let pass = (u64::from(e) * nb as u64 + b as u64) * u64::from(p.block_epochs)
+                    + u64::from(k);
+                let all = order(rows.clone(), p.order, pass);
+                let (lo, hi) = (
+                    all.len() * share.0 / share.1,
+                    all.len() * (share.0 + 1) / share.1,
+                );
+                for mb in all[lo..hi].chunks(p.batch) {
+                    for &r in mb {
+                        reads.read((r - start) as u64);
+                        let z = each!(&mut self.trainer, t => t.sample(r));
+                        self.loss_sum += p.loss.value(z, f64::from(plan.data.labels[r]));
+                        model_r += model_t;
+                    }
+                    let eta = self.hyper.step.at(self.updates);
+                    each!(&mut self.trainer, t => t.update(eta, self.hyper.l2, mb.len()));
+                    model_r += model_t;
+                    model_w += model_t;
+                    self.updates += 1;
+                    samples += mb.len() as u64;
+                    if self.snapshots.len() < p.snapshots {
+                        self.snapshots.push(self.trainer.model());
+                    }
+                }
+            }
+        }
+        self.samples = samples;
+        self.feature_bytes.push(samples * d * eb);
+        self.label_bytes.push(samples * eb);
+        self.ledger.add(
+            Key::device(self.index, phase, self.io.channel, Direction::Read),
+            reads.take(),
+        );
+        let key = |direction| Key {
+            engine: self.index,
+            phase,
+            region: Region::OnChip,
+            channel: None,
+            direction,
+        };
+        self.ledger.add(key(Direction::Read), model_r);
+        self.ledger.add(key(Direction::Write), model_w);
+    }
+
+    fn finish(mut self, plan: &Plan) -> SgdEngineResult {
+        let t = Traffic {
+            bytes: plan.model_bytes,
+            words: plan.model_bytes.div_ceil(self.io.word_bytes),
+            rows: 0,
+        };
+        let ph = Phase::single("copyback");
+        self.ledger.add(
+            Key {
+                engine: self.index,
+                phase: ph,
+                region: Region::HostLink,
+                channel: None,
+                direction: Direction::Write,
+            },
+            t,
+        );
+        let overflow = match &self.trainer {
+            Trainer::Fixed(f) => f.overflow,
+            _ => OverflowCounts::default(),
+        };
+        SgdEngineResult {
+            engine: self.index,
+            model: self.trainer.model(),
+            epoch_models: self.epoch_models,
+            snapshots: self.snapshots,
+            losses: self.losses,
+            feature_bytes: self.feature_bytes,
+            label_bytes: self.label_bytes,
+            ledger: self.ledger,
+            overflow,
+        }
+    }
+}
+
+/// ½λ‖w‖² over the weights (not the bias).
+fn penalty(m: &Model, d: usize, l2: f64) -> f64 {
+    0.5 * l2 * m.to_f64()[..d].iter().map(|w| w * w).sum::<f64>()
+}
+
+/// Trains every engine; `io[e]` places engine e. Engines of one epoch run in parallel.
+pub fn train(
+    data: &SgdData,
+    p: &SgdParams,
+    io: &[SgdIo],
+) -> Result<Vec<SgdEngineResult>, SgdError> {
+    validate(data, p, None)?;
+    train_validated(data, p, io)
+}
+
+/// [`train`] for data and parameters that [`validate`] has accepted (so a caller that
+/// trains the same data repeatedly checks it once).
+pub fn train_validated(
+    data: &SgdData,
+    p: &SgdParams,
+    io: &[SgdIo],
+) -> Result<Vec<SgdEngineResult>, SgdError> {
+    let e_count = p.engines.engines();
+    if io.len() != e_count {
+        return Err(SgdError::Param(format!(
+            "{} engine placements for {e_count} engines",
+            io.len()
+        )));
+    }
+    let d = data.dims();
+    let (payload, stride) = record_shape(d, p, io[0].word_bytes);
+    let block_rows = match p.capacity {
+        Some(c) if c < stride => {
+            return Err(SgdError::Capacity {
+                capacity: c,
+                record: stride,
+            })
+        }
+        Some(c) => ((c / stride) as usize).min(data.rows()),
+        None => data.rows(),
+    };
+    let m = d + usize::from(p.bias);
+    let mbytes = match &p.numeric {
+        Numeric::F32 { .. } => 4,
+        Numeric::F64 { .. } => 8,
+        Numeric::Fixed(s) => u64::from(fixed::storage_bits(s.model) / 8),
+    };
+    let plan = Plan {
+        data,
+        p,
+        block_rows,
+        payload,
+        stride,
+        model_bytes: m as u64 * mbytes,
+    };
+    let mut engines: Vec<Engine> = (0..e_count)
+        .map(|e| Engine {
+            index: e as u32,
+            io: io[e],
+            hyper: match &p.engines {
+                EngineMode::Independent { sweep } => sweep[e],
+                EngineMode::Averaging { .. } => p.hyper,
+            },
+            trainer: Trainer::new(data, p),
+            updates: 0,
+            snapshots: Vec::new(),
+            epoch_models: Vec::new(),
+            losses: Vec::new(),
+            loss_sum: 0.0,
+            samples: 0,
+            feature_bytes: Vec::new(),
+            label_bytes: Vec::new(),
+            ledger: Ledger::new(),
+        })
+        .collect();
+    let zero_loss = data
+        .labels
+        .iter()
+        .map(|&y| p.loss.value(0.0, f64::from(y)))
+        .sum::<f64>()
+        / data.rows() as f64;
+    let averaging = matches!(p.engines, EngineMode::Averaging { .. });
+    let mut active: Vec<bool> = vec![true; e_count];
+    for e in 0..p.epochs {
+        engines
+            .par_iter_mut()
+            .zip(active.par_iter())
+            .filter(|(_, a)| **a)
+            .for_each(|(en, _)| {
+                en.epoch(
+                    &plan,
+                    e,
+                    if averaging {
+                        (en.index as usize, e_count)
+                    } else {
+                        (0, 1)
+                    },
+                )
+            });
+        let mut shared = None;
+        if averaging {
+            let models: Vec<Model> = engines.iter().map(|en| en.trainer.model()).collect();
+            let avg = match &p.numeric {
+                Numeric::F32 { .. } => real::average::<f32>(&models),
+                Numeric::F64 { .. } => real::average::<f64>(&models),
+                Numeric::Fixed(_) => fixed::average(&models),
+            };
+            let sum: f64 = engines.iter().map(|en| en.loss_sum).sum();
+            let seen: u64 = engines.iter().map(|en| en.samples).sum();
+            for en in &mut engines {
+                each!(&mut en.trainer, t => t.set_model(&avg));
+            }
+            shared = Some(sum / seen as f64);
+        }
+        for (en, a) in engines
+            .iter_mut()
+            .zip(active.iter_mut())
+            .filter(|(_, a)| **a)
+        {
+            let model = en.trainer.model();
+            let mean = shared.unwrap_or(en.loss_sum / en.samples as f64);
+            let loss = mean + penalty(&model, d, en.hyper.l2);
+            let finite = model.to_f64().iter().all(|v| v.is_finite());
+            if !finite || !loss.is_finite() || loss > BLOW_UP * zero_loss.max(1.0) {
+                let why = if finite {
+                    format!(
+                        "loss {loss:e} exceeds {BLOW_UP:e} times the zero model's {zero_loss:e}"
+                    )
+                } else {
+                    "a weight is not finite".into()
+                };
+                return Err(SgdError::Diverged {
+                    engine: en.index,
+                    epoch: e,
+                    why,
+                });
+            }
+            if let (Some(tol), Some(&prev)) = (p.tol, en.losses.last()) {
+                *a = (prev - loss).abs() > tol;
+            }
+            en.losses.push(loss);
+            en.epoch_models.push(model);
+        }
+        if averaging && active.iter().any(|a| !a) {
+            active.iter_mut().for_each(|a| *a = false);
+        }
+        if active.iter().all(|a| !a) {
+            break;
+        }
+    }
+    Ok(engines.into_iter().map(|en| en.finish(&plan)).collect())
+}
+
+/// Trains one engine of an `Independent` sweep alone (the same result as its entry of
+/// [`train`]).
+pub fn train_engine(
+    data: &SgdData,
+    p: &SgdParams,
+    io: &SgdIo,
+) -> Result<SgdEngineResult, SgdError> {
+    let EngineMode::Independent { sweep } = &p.engines else {
+        return Err(SgdError::Param(
+            "averaging engines are coupled: train them together".into(),
+        ));
+    };
+    let h = *sweep
+        .get(io.engine as usize)
+        .ok_or_else(|| SgdError::Param(format!("no sweep entry for engine {}", io.engine)))?;
+    let one = SgdParams {
+        engines: EngineMode::Independent { sweep: vec![h] },
+        ..p.clone()
+    };
+    let mut r = train(data, &one, &[SgdIo { engine: 0, ..*io }])?.remove(0);
+    r.engine = io.engine;
+    let mut ledger = Ledger::new();
+    for (k, t) in r.ledger.entries() {
+        ledger.add(
+            Key {
+                engine: io.engine,
+                ..*k
+            },
+            *t,
+        );
+    }
+    r.ledger = ledger;
+    Ok(r)
+}

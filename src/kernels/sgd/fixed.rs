@@ -1,0 +1,396 @@
+//! Bit-true fixed point: signed Q formats (Qi.f holds v/2^f in 1 + i + f bits), the
+//! rounding modes, overflow handling with counts, the sigmoid table, and the fixed-point
+//! trainer. Values are held in `i64`, intermediate products and sums in `i128` exactly;
+//! a value leaves `i128` only through [`round_shift`] (dropping fraction bits) and
+//! [`fit`] (to a width, saturating or wrapping).
+//!
+//! Per sample (data Q_d with fraction f_d, model Q_m/f_m, accumulator Q_a/f_a):
+//! ```text
+//!   z   = fit_a( … fit_a(fit_a(0 + rnd(x₀·w₀ → f_a)) + rnd(x₁·w₁ → f_a)) … + rnd(b → f_a))
+//!   g   = squared: fit_a(z − y_a) · logistic: fit_a(σ̂(z) − y_a) · hinge: −y_a if y·z < 1 else 0
+//!   Gⱼ  = fit_a(Gⱼ + rnd(g·xⱼ → f_a)),  G_b = fit_a(G_b + g)
+//! ```
+//! Per minibatch: s = ne(η_t/B'·2³²), r = ne(η_t·λ·2³²) (nearest-even from `f64`), and
+//! `wⱼ = fit_m(wⱼ − rnd(s·Gⱼ + r·wⱼ → f_m))`, `b = fit_m(b − rnd(s·G_b → f_m))`, the sum
+//! formed exactly at fraction max(f_a, f_m) + 32. y_a is the label moved to f_a with
+//! `rnd`. Data and labels enter Q_d by nearest-even with saturation.
+
+use super::lfsr::Lfsr;
+use super::loss::Loss;
+use super::params::{Hyper, Model, ModelElem, OverflowCounts, SgdData, SgdError, SgdParams};
+use crate::table::QFormat;
+
+/// Fraction bits of the per-update step constants s and r.
+pub const STEP_FRAC: u32 = 32;
+
+/// Sigmoid table range: z ∈ [−SIGMOID_RANGE, SIGMOID_RANGE).
+pub const SIGMOID_RANGE: f64 = 8.0;
+
+/// How fraction bits are dropped.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Rounding {
+    /// Toward −∞ (an arithmetic right shift).
+    Truncate,
+    /// To nearest, ties to even.
+    NearestEven,
+    /// Add k random bits from the LFSR below the kept bits, then truncate: rounds up
+    /// with probability (dropped part)/2^k.
+    Stochastic,
+}
+
+/// What a value outside its format becomes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Overflow {
+    /// The nearest representable value.
+    Saturate,
+    /// Two's-complement wrap (the low bits kept).
+    Wrap,
+}
+
+/// The fixed-point mode of a job.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct FixedSpec {
+    /// Data and label format.
+    pub data: QFormat,
+    /// Model format.
+    pub model: QFormat,
+    /// Dot-product and gradient accumulator format.
+    pub acc: QFormat,
+    /// Rounding mode.
+    pub rounding: Rounding,
+    /// Overflow mode.
+    pub overflow: Overflow,
+    /// LFSR start state (non-zero) for stochastic rounding.
+    pub lfsr_seed: u32,
+    /// The sigmoid table has 2^k entries.
+    pub sigmoid_bits: u32,
+}
+
+/// Bits of a Q format with the sign.
+pub fn width(q: QFormat) -> u32 {
+    1 + q.int_bits + q.frac_bits
+}
+
+/// The smallest of 8, 16, 32, 64 bits holding `q`.
+pub fn storage_bits(q: QFormat) -> u32 {
+    [8, 16, 32, 64]
+        .into_iter()
+        .find(|&b| b >= width(q))
+        .unwrap_or(64)
+}
+
+/// v / 2^shift rounded by `mode` (a negative shift multiplies exactly). Stochastic
+/// rounding adds the low `shift` bits of one LFSR draw (for shift > 32, the draw shifted
+/// up to the top of the dropped bits).
+#[inline]
+pub fn round_shift(v: i128, shift: i32, mode: Rounding, lfsr: &mut Lfsr) -> i128 {
+    if shift <= 0 {
+        return v << (-shift);
+    }
+    let k = shift as u32;
+    match mode {
+        Rounding::Truncate => v >> k,
+        Rounding::NearestEven => {
+            let q = v >> k;
+            let rem = v - (q << k);
+            let half = 1i128 << (k - 1);
+            q + i128::from(rem > half || (rem == half && q & 1 == 1))
+        }
+        Rounding::Stochastic => {
+            let r = i128::from(lfsr.draw());
+            let r = if k <= 32 {
+                r & ((1 << k) - 1)
+            } else {
+                r << (k - 32)
+            };
+            (v + r) >> k
+        }
+    }
+}
+
+/// `v` in `bits` signed bits; an out-of-range value saturates or wraps and counts once.
+#[inline]
+pub fn fit(v: i128, bits: u32, mode: Overflow, count: &mut u64) -> i64 {
+    let hi = (1i128 << (bits - 1)) - 1;
+    let lo = -hi - 1;
+    if (lo..=hi).contains(&v) {
+        return v as i64;
+    }
+    *count += 1;
+    match mode {
+        Overflow::Saturate => v.clamp(lo, hi) as i64,
+        Overflow::Wrap => {
+            let m = v & ((1i128 << bits) - 1);
+            (if m > hi { m - (1i128 << bits) } else { m }) as i64
+        }
+    }
+}
+
+/// num / den (den > 0) rounded to nearest, ties to even.
+pub fn div_nearest_even(num: i128, den: i128) -> i128 {
+    let q = num.div_euclid(den);
+    let rem = num - q * den;
+    q + i128::from(2 * rem > den || (2 * rem == den && q & 1 == 1))
+}
+
+/// A real to `frac` fraction bits by nearest-even, then fitted to `bits` (saturating).
+pub fn from_real(v: f64, frac: u32, bits: u32, count: &mut u64) -> i64 {
+    let scaled = (v * libm::exp2(f64::from(frac))).round_ties_even();
+    fit(scaled as i128, bits, Overflow::Saturate, count)
+}
+
+/// The sigmoid table in the accumulator format: entry i = ne(σ(cᵢ)·2^f_a) with cᵢ the
+/// centre −8 + (i + ½)·16/2^k of bin i, σ from libm's `exp` in `f64`.
+pub fn sigmoid_lut(spec: &FixedSpec) -> Vec<i64> {
+    let n = 1u32 << spec.sigmoid_bits;
+    let w = 2.0 * SIGMOID_RANGE / f64::from(n);
+    let mut c = 0;
+    (0..n)
+        .map(|i| {
+            let x = -SIGMOID_RANGE + (f64::from(i) + 0.5) * w;
+            from_real(
+                1.0 / (1.0 + libm::exp(-x)),
+                spec.acc.frac_bits,
+                width(spec.acc),
+                &mut c,
+            )
+        })
+        .collect()
+}
+
+/// σ̂(z) for z in the accumulator format: 0 below −8, 1 at or above 8, else the table
+/// entry of bin ⌊(z + 8)·2^k/16⌋.
+#[inline]
+pub fn sigmoid(z: i64, lut: &[i64], spec: &FixedSpec) -> i64 {
+    let fa = spec.acc.frac_bits as i32;
+    let lo = -(8i128 << fa);
+    let z = i128::from(z);
+    if z < lo {
+        return 0;
+    }
+    let shift = fa + 4 - spec.sigmoid_bits as i32;
+    let i = if shift >= 0 {
+        (z - lo) >> shift
+    } else {
+        (z - lo) << -shift
+    };
+    if i >= lut.len() as i128 {
+        return 1i64 << fa;
+    }
+    lut[i as usize]
+}
+
+impl FixedSpec {
+    /// Checks the formats, the labels' representability and the step constants' range.
+    pub fn validate(&self, params: &SgdParams, hypers: &[Hyper]) -> Result<(), SgdError> {
+        for (what, q) in [
+            ("data", self.data),
+            ("model", self.model),
+            ("accumulator", self.acc),
+        ] {
+            if width(q) > 64 {
+                return Err(SgdError::QFormat {
+                    what,
+                    q,
+                    bits: width(q),
+                });
+            }
+        }
+        if params.loss != Loss::Squared && self.data.int_bits == 0 {
+            return Err(SgdError::Param(format!(
+                "data format {} cannot hold the label 1 of the {} loss",
+                self.data,
+                params.loss.name()
+            )));
+        }
+        if self.acc.frac_bits.abs_diff(self.model.frac_bits) > 24 {
+            return Err(SgdError::Param(
+                "accumulator and model fraction bits may differ by at most 24".into(),
+            ));
+        }
+        if !(1..=16).contains(&self.sigmoid_bits) {
+            return Err(SgdError::Param(format!(
+                "sigmoid table bits {} must be within 1..=16",
+                self.sigmoid_bits
+            )));
+        }
+        if self.rounding == Rounding::Stochastic && self.lfsr_seed == 0 {
+            return Err(SgdError::Param("the LFSR seed must be non-zero".into()));
+        }
+        if hypers
+            .iter()
+            .any(|h| h.step.eta >= 256.0 || h.step.eta * h.l2 >= 256.0)
+        {
+            return Err(SgdError::Param(
+                "fixed point needs η and η·λ below 256".into(),
+            ));
+        }
+        Ok(())
+    }
+
+    /// The model's element type.
+    pub fn model_elem(&self) -> ModelElem {
+        ModelElem::Fixed {
+            bits: storage_bits(self.model),
+            q: self.model,
+        }
+    }
+}
+
+/// The fixed-point trainer of one engine.
+pub struct FixedTrainer {
+    spec: FixedSpec,
+    loss: Loss,
+    d: usize,
+    bias: bool,
+    /// n × (d + 1) values in Q_d: features then label.
+    x: Vec<i64>,
+    lut: Vec<i64>,
+    w: Vec<i64>,
+    g: Vec<i64>,
+    lfsr: Lfsr,
+    /// Overflow events so far.
+    pub overflow: OverflowCounts,
+}
+
+impl FixedTrainer {
+    /// Converts the data to Q_d and starts from a zero model.
+    pub fn new(data: &SgdData, spec: FixedSpec, loss: Loss, bias: bool) -> FixedTrainer {
+        let d = data.dims();
+        let (fd, bd) = (spec.data.frac_bits, width(spec.data));
+        let mut overflow = OverflowCounts::default();
+        let mut x = Vec::with_capacity(data.rows() * (d + 1));
+        for (row, &y) in data.features.rows().into_iter().zip(data.labels.iter()) {
+            x.extend(
+                row.iter()
+                    .map(|&v| from_real(f64::from(v), fd, bd, &mut overflow.data)),
+            );
+            x.push(from_real(f64::from(y), fd, bd, &mut overflow.data));
+        }
+        let m = d + usize::from(bias);
+        FixedTrainer {
+            spec,
+            loss,
+            d,
+            bias,
+            x,
+            lut: sigmoid_lut(&spec),
+            w: vec![0; m],
+            g: vec![0; m],
+            lfsr: Lfsr(spec.lfsr_seed.max(1)),
+            overflow,
+        }
+    }
+
+    /// Adds sample `r`'s gradient; returns z as a real.
+    pub fn sample(&mut self, r: usize) -> f64 {
+        let s = self.spec;
+        let (fd, fm, fa) = (
+            s.data.frac_bits as i32,
+            s.model.frac_bits as i32,
+            s.acc.frac_bits as i32,
+        );
+        let (ba, ov, rm) = (width(s.acc), s.overflow, s.rounding);
+        let row = &self.x[r * (self.d + 1)..(r + 1) * (self.d + 1)];
+        let (x, y) = (&row[..self.d], row[self.d]);
+        let mut acc: i64 = 0;
+        for (&xj, &wj) in x.iter().zip(&self.w) {
+            let p = round_shift(
+                i128::from(xj) * i128::from(wj),
+                fd + fm - fa,
+                rm,
+                &mut self.lfsr,
+            );
+            acc = fit(i128::from(acc) + p, ba, ov, &mut self.overflow.dot);
+        }
+        if self.bias {
+            let b = round_shift(i128::from(self.w[self.d]), fm - fa, rm, &mut self.lfsr);
+            acc = fit(i128::from(acc) + b, ba, ov, &mut self.overflow.dot);
+        }
+        let z = acc;
+        let ya = round_shift(i128::from(y), fd - fa, rm, &mut self.lfsr);
+        let g = match self.loss {
+            Loss::Squared => fit(i128::from(z) - ya, ba, ov, &mut self.overflow.grad),
+            Loss::Logistic => fit(
+                i128::from(sigmoid(z, &self.lut, &s)) - ya,
+                ba,
+                ov,
+                &mut self.overflow.grad,
+            ),
+            Loss::Hinge => {
+                let one = 1i128 << fa;
+                let margin = if y > 0 { i128::from(z) } else { -i128::from(z) };
+                if margin < one {
+                    fit(-ya, ba, ov, &mut self.overflow.grad)
+                } else {
+                    0
+                }
+            }
+        };
+        for (gj, &xj) in self.g.iter_mut().zip(x) {
+            let p = round_shift(i128::from(g) * i128::from(xj), fd, rm, &mut self.lfsr);
+            *gj = fit(i128::from(*gj) + p, ba, ov, &mut self.overflow.grad);
+        }
+        if self.bias {
+            self.g[self.d] = fit(
+                i128::from(self.g[self.d]) + i128::from(g),
+                ba,
+                ov,
+                &mut self.overflow.grad,
+            );
+        }
+        z as f64 / libm::exp2(f64::from(fa))
+    }
+
+    /// Applies and clears the gradient of a minibatch of `batch` samples.
+    pub fn update(&mut self, eta: f64, l2: f64, batch: usize) {
+        let s = self.spec;
+        let (fm, fa) = (s.model.frac_bits, s.acc.frac_bits);
+        let top = fm.max(fa) + STEP_FRAC;
+        let mut none = 0;
+        let sc = i128::from(from_real(eta / batch as f64, STEP_FRAC, 64, &mut none));
+        let rc = i128::from(from_real(eta * l2, STEP_FRAC, 64, &mut none));
+        let bm = width(s.model);
+        for j in 0..self.w.len() {
+            let r = if j < self.d { rc } else { 0 };
+            let t1 = (sc * i128::from(self.g[j])) << (top - fa - STEP_FRAC);
+            let t2 = (r * i128::from(self.w[j])) << (top - fm - STEP_FRAC);
+            let delta = round_shift(t1 + t2, (top - fm) as i32, s.rounding, &mut self.lfsr);
+            self.w[j] = fit(
+                i128::from(self.w[j]) - delta,
+                bm,
+                s.overflow,
+                &mut self.overflow.model,
+            );
+            self.g[j] = 0;
+        }
+    }
+
+    /// The model.
+    pub fn model(&self) -> Model {
+        Model::Fixed(self.w.clone(), self.spec.model_elem())
+    }
+
+    /// Replaces the model.
+    pub fn set_model(&mut self, m: &Model) {
+        if let Model::Fixed(v, _) = m {
+            self.w = v.clone();
+        }
+    }
+}
+
+/// The mean of fixed-point models: exact sums, divided by E with nearest-even.
+pub fn average(models: &[Model]) -> Model {
+    let ws: Vec<&Vec<i64>> = models
+        .iter()
+        .map(|m| match m {
+            Model::Fixed(v, _) => v,
+            _ => unreachable!("a model of another element type"),
+        })
+        .collect();
+    let e = ws.len() as i128;
+    let out = (0..ws[0].len())
+        .map(|j| div_nearest_even(ws.iter().map(|w| i128::from(w[j])).sum(), e) as i64)
+        .collect();
+    Model::Fixed(out, models[0].elem())
+}

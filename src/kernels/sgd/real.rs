@@ -1,0 +1,195 @@
+//! The float modes (`f32`, `f64`): a trait over the two element types and the float
+//! trainer. Every operation is one IEEE operation rounded to nearest-even (no fused
+//! multiply-add); with flush-to-zero, inputs and every result that is subnormal become a
+//! zero of the same sign.
+//!
+//! Per minibatch (B' samples, the last one of a pass may be short), in `T`:
+//! `z = dot(w, x) + b`, `g = ℓ'(z, y)`, `Gⱼ = Gⱼ + g·xⱼ` and `G_b = G_b + g` over the samples in order
+//! from +0; then `s = T(η_t / B')`, `r = T(η_t·λ)` (computed in `f64`, rounded once) and
+//! `wⱼ = wⱼ − (s·Gⱼ + r·wⱼ)`, `b = b − s·G_b`.
+
+use super::loss::Loss;
+use super::params::{Model, SgdData};
+use super::tree;
+
+/// `f32` or `f64`.
+pub trait Real: Copy + Send + Sync + PartialOrd + 'static {
+    /// +0.
+    const ZERO: Self;
+    /// Rounded from `f64`.
+    fn from_f64(v: f64) -> Self;
+    /// Exact widening (or identity) from `f32`.
+    fn from_f32(v: f32) -> Self;
+    /// Exact widening to `f64`.
+    fn to_f64(self) -> f64;
+    /// self + o.
+    fn add(self, o: Self) -> Self;
+    /// self − o.
+    fn sub(self, o: Self) -> Self;
+    /// self · o.
+    fn mul(self, o: Self) -> Self;
+    /// self / o.
+    fn div(self, o: Self) -> Self;
+    /// A subnormal becomes a zero of its sign.
+    fn flush(self) -> Self;
+    /// Wraps weights as a model.
+    fn model(w: Vec<Self>) -> Model;
+    /// Unwraps a model of this type.
+    fn weights(m: &Model) -> Vec<Self>;
+}
+
+macro_rules! impl_real {
+    ($t:ty, $variant:ident) => {
+        impl Real for $t {
+            const ZERO: Self = 0.0;
+            #[inline(always)]
+            fn from_f64(v: f64) -> Self {
+                v as $t
+            }
+            #[inline(always)]
+            fn from_f32(v: f32) -> Self {
+                v as $t
+            }
+            #[inline(always)]
+            fn to_f64(self) -> f64 {
+                self as f64
+            }
+            #[inline(always)]
+            fn add(self, o: Self) -> Self {
+                self + o
+            }
+            #[inline(always)]
+            fn sub(self, o: Self) -> Self {
+                self - o
+            }
+            #[inline(always)]
+            fn mul(self, o: Self) -> Self {
+                self * o
+            }
+            #[inline(always)]
+            fn div(self, o: Self) -> Self {
+                self / o
+            }
+            #[inline(always)]
+            fn flush(self) -> Self {
+                if self != 0.0 && self.abs() < <$t>::MIN_POSITIVE {
+                    <$t>::from_bits(self.to_bits() & !(!0 >> 1))
+                } else {
+                    self
+                }
+            }
+            fn model(w: Vec<Self>) -> Model {
+                Model::$variant(w)
+            }
+            fn weights(m: &Model) -> Vec<Self> {
+                match m {
+                    Model::$variant(v) => v.clone(),
+                    _ => unreachable!("a model of another element type"),
+                }
+            }
+        }
+    };
+}
+impl_real!(f32, F32);
+impl_real!(f64, F64);
+
+/// The float trainer of one engine: the model `w` (d weights, then the bias), the
+/// gradient accumulators `g`, and the arithmetic's options.
+pub struct FloatTrainer<'a, T: Real, const FTZ: bool> {
+    data: &'a SgdData,
+    loss: Loss,
+    lanes: u32,
+    bias: bool,
+    w: Vec<T>,
+    g: Vec<T>,
+}
+
+impl<'a, T: Real, const FTZ: bool> FloatTrainer<'a, T, FTZ> {
+    /// A zero model.
+    pub fn new(data: &'a SgdData, loss: Loss, lanes: u32, bias: bool) -> Self {
+        let m = data.dims() + usize::from(bias);
+        FloatTrainer {
+            data,
+            loss,
+            lanes,
+            bias,
+            w: vec![T::ZERO; m],
+            g: vec![T::ZERO; m],
+        }
+    }
+
+    #[inline(always)]
+    fn fl(v: T) -> T {
+        if FTZ {
+            v.flush()
+        } else {
+            v
+        }
+    }
+
+    /// Adds sample `r`'s gradient; returns its prediction z in `f64`.
+    #[inline]
+    pub fn sample(&mut self, r: usize) -> f64 {
+        let d = self.data.dims();
+        let x = self.data.features.row(r);
+        let x = x.as_slice().expect("row-major features");
+        let y = Self::fl(T::from_f32(self.data.labels[r]));
+        let mut z = tree::dot::<T, FTZ>(x, &self.w[..d], self.lanes);
+        if self.bias {
+            z = Self::fl(z.add(self.w[d]));
+        }
+        let gz = Self::fl(self.loss.dz(z, y));
+        for (gj, &xj) in self.g[..d].iter_mut().zip(x) {
+            *gj = Self::fl(gj.add(Self::fl(gz.mul(Self::fl(T::from_f32(xj))))));
+        }
+        if self.bias {
+            self.g[d] = Self::fl(self.g[d].add(gz));
+        }
+        z.to_f64()
+    }
+
+    /// Applies and clears the gradient of a minibatch of `batch` samples.
+    #[inline]
+    pub fn update(&mut self, eta: f64, l2: f64, batch: usize) {
+        let d = self.data.dims();
+        let s = Self::fl(T::from_f64(eta / batch as f64));
+        let r = Self::fl(T::from_f64(eta * l2));
+        for (wj, gj) in self.w[..d].iter_mut().zip(self.g[..d].iter_mut()) {
+            *wj = Self::fl(wj.sub(Self::fl(Self::fl(s.mul(*gj)).add(Self::fl(r.mul(*wj))))));
+            *gj = T::ZERO;
+        }
+        if self.bias {
+            self.w[d] = Self::fl(self.w[d].sub(Self::fl(s.mul(self.g[d]))));
+            self.g[d] = T::ZERO;
+        }
+    }
+
+    /// The model.
+    pub fn model(&self) -> Model {
+        T::model(self.w.clone())
+    }
+
+    /// Replaces the model.
+    pub fn set_model(&mut self, m: &Model) {
+        self.w = T::weights(m);
+    }
+
+    /// Whether every weight is finite.
+    pub fn finite(&self) -> bool {
+        self.w.iter().all(|v| v.to_f64().is_finite())
+    }
+}
+
+/// The mean of `models` in `T`: each coordinate summed in engine order from +0, then
+/// divided by `T(E)` in one IEEE division.
+pub fn average<T: Real>(models: &[Model]) -> Model {
+    let ws: Vec<Vec<T>> = models.iter().map(T::weights).collect();
+    let e = T::from_f64(ws.len() as f64);
+    let out = (0..ws[0].len())
+        .map(|j| {
+            let s = ws.iter().fold(T::ZERO, |a, w| a.add(w[j]));
+            s.div(e)
+        })
+        .collect();
+    T::model(out)
+}
