@@ -124,7 +124,7 @@ def time_scan(run, lo, hi, runs):
     return ids, times
 
 
-def weir_median(path):
+def weir_median(path, matches):
     try:
         with open(path, encoding="utf-8") as f:
             doc = json.load(f)
@@ -133,9 +133,13 @@ def weir_median(path):
     except json.JSONDecodeError as e:
         raise ScanError(f"{path}: invalid JSON at line {e.lineno} column {e.colno}: {e.msg}") from e
     # `weir bench scan --out PREFIX` writes {"points": [...]}: compare with the point that
-    # used the most threads (all cores, as numpy's whole-array work is on one).
+    # found the same number of rows (the same .npy) with the most threads.
     if isinstance(doc, dict) and isinstance(doc.get("points"), list) and doc["points"]:
-        doc = max(doc["points"], key=lambda p: p.get("threads", 0) if isinstance(p, dict) else 0)
+        pts = [p for p in doc["points"] if isinstance(p, dict)]
+        same = [p for p in pts if p.get("matches") == matches]
+        if not same:
+            raise ScanError(f"{path}: no point found {matches} rows; was it run on this .npy?")
+        doc = max(same, key=lambda p: p.get("threads", 0))
     median = doc.get("median_s") if isinstance(doc, dict) else None
     if isinstance(median, bool) or not isinstance(median, (int, float)) or not median > 0:
         raise ScanError(f"{path}: needs a positive number in field median_s, found {median!r}")
@@ -144,9 +148,9 @@ def weir_median(path):
 
 def main(argv):
     args = parse_args(argv)
-    # Read the comparison file first so a bad path fails before a long run.
-    weir_s = weir_median(args.weir_json) if args.weir_json else None
     a = load_u32(args.npy)
+    matches = int(scan(a, args.lo, args.hi).size)
+    weir_s = weir_median(args.weir_json, matches) if args.weir_json else None
     print(f"rows {a.size}  bytes {a.nbytes}  runs {args.runs}  (GB/s = input bytes / median, 1 GB = 1e9 bytes)")
     oracle = None
     results = []

@@ -23,21 +23,34 @@ fn sink(path: &Path) -> HashWriter<BufWriter<File>> {
 }
 
 fn main() {
-    let args: Vec<String> = std::env::args().skip(1).filter(|a| a != "--bench").collect();
+    let args: Vec<String> = std::env::args()
+        .skip(1)
+        .filter(|a| a != "--bench")
+        .collect();
     let mib: usize = args.first().and_then(|a| a.parse().ok()).unwrap_or(256);
     let dir = args
         .get(1)
         .map(PathBuf::from)
         .unwrap_or_else(std::env::temp_dir);
-    let payload: Vec<u8> = (0..mib << 20).map(|i| (i as u32).wrapping_mul(2_654_435_761) as u8).collect();
-    let (img, plain) = (dir.join("weir-write-bench.img"), dir.join("weir-write-bench.plain"));
+    let payload: Vec<u8> = (0..mib << 20)
+        .map(|i| (i as u32).wrapping_mul(2_654_435_761) as u8)
+        .collect();
+    let (img, plain) = (
+        dir.join("weir-write-bench.img"),
+        dir.join("weir-write-bench.plain"),
+    );
     println!(
         "{mib} MiB payload, {WORD_BYTES}-byte words, in {}; 5 pairs after a warm-up",
         dir.display()
     );
     println!("format  image MB  image GB/s  plain GB/s  image/plain  IQR");
-    type Writer = fn(&mut HashWriter<BufWriter<File>>, usize, &[u8]) -> Result<u64, weir::image::ImageError>;
-    let formats: [(&str, Writer); 3] = [("hex", write_hex), ("bin", write_bin), ("npy", write_npy_words)];
+    type Writer =
+        fn(&mut HashWriter<BufWriter<File>>, usize, &[u8]) -> Result<u64, weir::image::ImageError>;
+    let formats: [(&str, Writer); 3] = [
+        ("hex", write_hex),
+        ("bin", write_bin),
+        ("npy", write_npy_words),
+    ];
     for (name, write) in formats {
         let mut w = sink(&img);
         write(&mut w, WORD_BYTES, &payload).expect("write image");
@@ -48,7 +61,8 @@ fn main() {
             1,
             5,
             &mut || {
-                let mut f = BufWriter::with_capacity(1 << 20, File::create(&plain).expect("create"));
+                let mut f =
+                    BufWriter::with_capacity(1 << 20, File::create(&plain).expect("create"));
                 let mut left = out_bytes as usize;
                 while left > 0 {
                     let n = left.min(block.len());

@@ -683,7 +683,8 @@ mod tests {
 
     #[test]
     fn from_json_rejects_missing_fields_and_empty_points() {
-        let err = Calibration::from_json(&format!("{{\"format_version\": {FORMAT_VERSION}}}")).unwrap_err();
+        let err = Calibration::from_json(&format!("{{\"format_version\": {FORMAT_VERSION}}}"))
+            .unwrap_err();
         assert!(err.to_string().contains("missing field"), "{err}");
         let mut empty = sample();
         empty.points.clear();

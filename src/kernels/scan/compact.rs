@@ -28,7 +28,7 @@ const POS: [[u8; 8]; 256] = {
 };
 
 /// Matches in a word at or below which the per-match walk is used.
-const SPARSE: u32 = 6;
+const SPARSE: u32 = 3;
 
 /// Appends, as little-endian `u32`, `base + j` for every set bit j of `m`, ascending.
 /// The ids of set bits must fit in `u32`; ids of clear bits are written past the kept
@@ -44,27 +44,21 @@ pub fn push_ids_u32(out: &mut Vec<u8>, base: u32, m: u64) {
         }
         return;
     }
-    // Each byte writes 8 ids (32 bytes) past the ones kept, so room for 64 + 8 ids.
-    out.reserve(4 * (64 + 8));
-    let len = out.len();
-    let spare = &mut out.spare_capacity_mut()[..4 * (64 + 8)];
+    // Each byte writes 8 ids (32 bytes) from where the kept ones end, so the word is
+    // staged in a buffer with room for 64 + 8 ids and copied out once.
+    let mut buf = [0u8; 4 * (64 + 8)];
     let mut at = 0;
     for (k, &byte) in m.to_le_bytes().iter().enumerate() {
         let b = base.wrapping_add(8 * k as u32);
-        let pos = &POS[usize::from(byte)];
-        let dst = &mut spare[at..at + 32];
-        for (d, &p) in dst.chunks_exact_mut(4).zip(pos) {
-            for (x, v) in d.iter_mut().zip(b.wrapping_add(u32::from(p)).to_le_bytes()) {
-                x.write(v);
-            }
+        let mut v = [0u8; 32];
+        for (d, &p) in v.chunks_exact_mut(4).zip(&POS[usize::from(byte)]) {
+            d.copy_from_slice(&b.wrapping_add(u32::from(p)).to_le_bytes());
         }
+        buf[at..at + 32].copy_from_slice(&v);
         at += 4 * byte.count_ones() as usize;
     }
     debug_assert_eq!(at, 4 * n as usize);
-    // SAFETY: the first `at` bytes of the spare capacity were just written (each byte of
-    // the mask wrote 32 bytes from its start, and `at` advanced by at most 32 each time),
-    // and `reserve` made room for them.
-    unsafe { out.set_len(len + at) };
+    out.extend_from_slice(&buf[..at]);
 }
 
 #[cfg(test)]
