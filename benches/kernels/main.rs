@@ -2,12 +2,13 @@
 
 use criterion::{criterion_group, criterion_main};
 
+mod memsys;
 mod scan;
 mod sgd;
 
 criterion_group! {
     name = kernels;
     config = criterion::Criterion::default().sample_size(10);
-    targets = scan::bench, sgd::bench
+    targets = scan::bench, sgd::bench, memsys::bench
 }
 criterion_main!(kernels);
