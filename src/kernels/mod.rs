@@ -1,6 +1,7 @@
 //! The kernels: they compute results and count their traffic into a ledger. They know
 //! tables, layout and the ledger, never file formats or the terminal.
 
+pub mod join;
 pub mod predicate;
 pub mod scan;
 
