@@ -369,5 +369,7 @@ fn generator_is_pinned_and_partition_free() {
         h.update(weir::table::bin_column_bytes(&t.columns[1]));
     }
     let hex: String = h.finalize().iter().map(|x| format!("{x:02x}")).collect();
-    assert_eq!(hex, "pin");
+    // Pinned from the generator's output when it was written: any change to the bytes a
+    // seed gives (on any machine, thread or partition count) fails here.
+    assert_eq!(hex, "a279b6842240b826e63b741c8366fb9f11aaf4767b4ce8a32244e319b13aa796");
 }

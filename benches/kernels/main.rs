@@ -2,11 +2,12 @@
 
 use criterion::{criterion_group, criterion_main};
 
+mod join;
 mod scan;
 
 criterion_group! {
     name = kernels;
     config = criterion::Criterion::default().sample_size(10);
-    targets = scan::bench
+    targets = scan::bench, join::bench
 }
 criterion_main!(kernels);

@@ -2,5 +2,6 @@
 //! benchmarks reported as a fraction of the calibrated bandwidth.
 
 pub mod calibrate;
+pub mod join;
 pub mod scan;
 pub mod stats;

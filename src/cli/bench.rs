@@ -25,7 +25,8 @@ fn parse_bytes(s: &str) -> Result<u64> {
     })
 }
 
-fn all_threads() -> usize {
+/// Threads of this host.
+pub fn all_threads() -> usize {
     std::thread::available_parallelism().map_or(1, |n| n.get())
 }
 
@@ -89,6 +90,7 @@ pub fn calibrate(a: CalibrateArgs) -> Result<Outcome> {
 pub fn bench(a: BenchArgs) -> Result<Outcome> {
     match a.kind {
         BenchKind::Scan(s) => bench_scan(s),
+        BenchKind::Join(j) => super::bench_join::bench_join(j),
     }
 }
 

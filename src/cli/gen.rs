@@ -6,12 +6,14 @@ use weir::gen::{ColumnGen, Dist, Shape, Skew, TableGen};
 use weir::{Error, Result};
 
 use super::args::{GenArgs, GenKind, GenScanArgs};
+pub use super::gen_join::gen_join;
 use super::Outcome;
 
 /// `weir gen`.
 pub fn gen(a: GenArgs) -> Result<Outcome> {
     match a.kind {
         GenKind::Scan(s) => gen_scan(s),
+        GenKind::Join(j) => gen_join(j),
     }
 }
 

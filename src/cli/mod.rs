@@ -13,6 +13,8 @@ pub mod args;
 mod bench;
 mod check;
 mod gen;
+mod gen_join;
+mod bench_join;
 mod run;
 
 use std::process::ExitCode;

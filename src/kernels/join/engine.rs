@@ -25,6 +25,12 @@ use crate::table::{Column, ColumnData, ElemType, Table};
 /// Probe rows per chunk of work.
 pub const CHUNK_ROWS: usize = 1 << 14;
 
+/// Probe rows between checks of a chunk's output size.
+const SUB_ROWS: usize = 1 << 10;
+
+/// Output bytes after which a chunk hands its records to the sink before going on.
+const OUT_LIMIT: usize = 8 << 20;
+
 /// A key or payload column, borrowed.
 #[derive(Clone, Copy)]
 pub(crate) enum Col<'a> {
@@ -133,6 +139,7 @@ pub(crate) struct Driven {
 #[derive(Default)]
 struct ChunkOut {
     buf: Vec<u8>,
+    next: usize,
     records: u64,
     matches: u64,
     onchip: Traffic,
@@ -247,21 +254,37 @@ pub(crate) fn drive<T: BlockTable>(
             };
             let work = outs[..n].par_iter_mut().zip(pieces).enumerate();
             work.for_each(|(i, (o, seen))| {
-                let c = first + i;
-                let rows = c * CHUNK_ROWS..((c + 1) * CHUNK_ROWS).min(l_rows);
-                let at = (probe_row_start, rows);
-                probe_chunk(cols, &table, &writer, p, io, at, seen, o);
+                let rows = chunk_rows(first + i, l_rows);
+                let at = (probe_row_start, rows.clone());
+                probe_chunk(cols, &table, &writer, p, io, at, rows.start, seen, o);
             });
-            for o in &mut outs[..n] {
-                sink(&o.buf);
-                out.touch(o.buf.len() as u64, o.records);
-                records += o.records;
-                matches += o.matches;
-                put(&mut ledger, on(e, pp, Region::OnChip, Direction::Read), o.onchip);
-                let lk = Key::device(e, pp, io.probe_channel, Direction::Read);
-                put(&mut ledger, lk, o.key);
-                if reads_pay {
-                    put(&mut ledger, lk, o.pay);
+            for (i, o) in outs[..n].iter_mut().enumerate() {
+                let c = first + i;
+                let rows = chunk_rows(c, l_rows);
+                loop {
+                    sink(&o.buf);
+                    out.touch(o.buf.len() as u64, o.records);
+                    records += o.records;
+                    matches += o.matches;
+                    put(&mut ledger, on(e, pp, Region::OnChip, Direction::Read), o.onchip);
+                    let lk = Key::device(e, pp, io.probe_channel, Direction::Read);
+                    put(&mut ledger, lk, o.key);
+                    if reads_pay {
+                        put(&mut ledger, lk, o.pay);
+                    }
+                    if o.next == rows.end {
+                        break;
+                    }
+                    // A chunk whose output outgrew the limit goes on where it stopped.
+                    let cw = CHUNK_ROWS / 64;
+                    let words = seen.len();
+                    let piece: &mut [u64] = if semi {
+                        &mut seen[c * cw..((c + 1) * cw).min(words)]
+                    } else {
+                        &mut []
+                    };
+                    let at = (probe_row_start, rows.clone());
+                    probe_chunk(cols, &table, &writer, p, io, at, o.next, piece, o);
                 }
             }
         }
@@ -314,6 +337,13 @@ fn host_link(
     }
 }
 
+fn chunk_rows(c: usize, l_rows: usize) -> std::ops::Range<usize> {
+    c * CHUNK_ROWS..((c + 1) * CHUNK_ROWS).min(l_rows)
+}
+
+/// Probes rows `from..` of chunk `rows` into `o`, stopping after the sub-slice at which
+/// the output passes [`OUT_LIMIT`] bytes (`o.next` says where). The chunk's probe reads are
+/// counted on its first call.
 #[allow(clippy::too_many_arguments)]
 fn probe_chunk<T: BlockTable>(
     cols: &Cols<'_>,
@@ -321,50 +351,78 @@ fn probe_chunk<T: BlockTable>(
     writer: &RecordWriter,
     p: &JoinParams,
     io: &JoinIo,
-    (start, rows): (u64, std::ops::Range<usize>),
+    (start, chunk): (u64, std::ops::Range<usize>),
+    from: usize,
     seen: &mut [u64],
     o: &mut ChunkOut,
 ) {
     o.buf.clear();
     let (kb, pb) = (cols.pkey.bytes(), cols.ppay.bytes());
-    let n = rows.len() as u64;
-    let mut kc = Cursor::new(io.probe_key_base + rows.start as u64 * kb, io.word_bytes);
+    let n = if from == chunk.start { chunk.len() as u64 } else { 0 };
+    let mut kc = Cursor::new(io.probe_key_base + chunk.start as u64 * kb, io.word_bytes);
     kc.touch(n * kb, n);
-    let mut pc = Cursor::new(io.probe_payload_base + rows.start as u64 * pb, io.word_bytes);
+    let mut pc = Cursor::new(io.probe_payload_base + chunk.start as u64 * pb, io.word_bytes);
     pc.touch(n * pb, n);
-    let keys = match cols.pkey {
-        Col::U32(v) => Col::U32(&v[rows.clone()]),
-        Col::U64(v) => Col::U64(&v[rows.clone()]),
-    };
     let mut onchip = Traffic::default();
     let (mut records, mut matches) = (0u64, 0u64);
-    let buf = &mut o.buf;
-    let base = rows.start;
-    match p.variant {
-        Variant::Inner(_) => table.probe_rows(keys, &mut onchip, |r, spay| {
-            let row = base + r;
-            writer.write(buf, start + row as u64, keys.get(r), cols.ppay.get(row), spay);
-            matches += 1;
-        }),
-        Variant::Semi => {
-            table.probe_rows(keys, &mut onchip, |r, _| {
-                matches += 1;
-                let bit = 1u64 << (r % 64);
-                if seen[r / 64] & bit == 0 {
-                    seen[r / 64] |= bit;
-                    buf.extend_from_slice(&(start + (base + r) as u64).to_le_bytes());
-                    records += 1;
-                }
-            })
-        }
-        Variant::Count => table.probe_rows(keys, &mut onchip, |_, _| matches += 1),
+    let mut at = from;
+    while at < chunk.end && o.buf.len() < OUT_LIMIT {
+        let rows = at..(at + SUB_ROWS).min(chunk.end);
+        let (r, m) = probe_rows(cols, table, writer, p, start, rows.clone(), chunk.start, seen, &mut o.buf, &mut onchip);
+        records += r;
+        matches += m;
+        at = rows.end;
     }
-    if matches!(p.variant, Variant::Inner(_)) {
-        records = matches;
-    }
+    o.next = at;
     o.records = records;
     o.matches = matches;
     o.onchip = onchip;
     o.key = kc.traffic;
     o.pay = pc.traffic;
+}
+
+/// Probes `rows`; returns (records, matches).
+#[allow(clippy::too_many_arguments)]
+fn probe_rows<T: BlockTable>(
+    cols: &Cols<'_>,
+    table: &T,
+    writer: &RecordWriter,
+    p: &JoinParams,
+    start: u64,
+    rows: std::ops::Range<usize>,
+    chunk_start: usize,
+    seen: &mut [u64],
+    buf: &mut Vec<u8>,
+    onchip: &mut Traffic,
+) -> (u64, u64) {
+    let keys = match cols.pkey {
+        Col::U32(v) => Col::U32(&v[rows.clone()]),
+        Col::U64(v) => Col::U64(&v[rows.clone()]),
+    };
+    let (mut records, mut matches) = (0u64, 0u64);
+    let base = rows.start;
+    let seen_off = base - chunk_start;
+    match p.variant {
+        Variant::Inner(_) => table.probe_rows(keys, onchip, |r, spay| {
+            let row = base + r;
+            writer.write(buf, start + row as u64, keys.get(r), cols.ppay.get(row), spay);
+            matches += 1;
+        }),
+        Variant::Semi => {
+            table.probe_rows(keys, onchip, |r, _| {
+                matches += 1;
+                let (w, bit) = ((seen_off + r) / 64, 1u64 << ((seen_off + r) % 64));
+                if seen[w] & bit == 0 {
+                    seen[w] |= bit;
+                    buf.extend_from_slice(&(start + (base + r) as u64).to_le_bytes());
+                    records += 1;
+                }
+            })
+        }
+        Variant::Count => table.probe_rows(keys, onchip, |_, _| matches += 1),
+    }
+    if matches!(p.variant, Variant::Inner(_)) {
+        records = matches;
+    }
+    (records, matches)
 }
