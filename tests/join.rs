@@ -164,8 +164,16 @@ proptest! {
 }
 
 fn gen_pair(s: u64, l: u64, dup: Dup, skew: KeySkew) -> (Table, Table, u64) {
-    let g = JoinGen { seed: 11, build_rows: s, probe_rows: l, key_type: ElemType::U64,
-        payload_type: ElemType::U64, dup, match_rate: 0.7, skew };
+    let g = JoinGen {
+        seed: 11,
+        build_rows: s,
+        probe_rows: l,
+        key_type: ElemType::U64,
+        payload_type: ElemType::U64,
+        dup,
+        match_rate: 0.7,
+        skew,
+    };
     let b = g.build().unwrap();
     let part = g.probe(&b, 0..l);
     (b.table, part.table, part.pairs)
@@ -177,10 +185,14 @@ fn same_bytes_for_one_two_and_four_threads() {
     let mut p = params(true);
     p.capacity_bytes = 20 << 10; // several blocks
     let run = |t: usize| {
-        let pool = rayon::ThreadPoolBuilder::new().num_threads(t).build().unwrap();
+        let pool = rayon::ThreadPoolBuilder::new()
+            .num_threads(t)
+            .build()
+            .unwrap();
         pool.install(|| {
             let mut res = None;
-            let out = collect(|s| res = Some(join_engine(&b, &l, 0, &p, &JoinIo::host(), s).unwrap()));
+            let out =
+                collect(|s| res = Some(join_engine(&b, &l, 0, &p, &JoinIo::host(), s).unwrap()));
             let r = res.unwrap();
             (out, r.ledger, fast(&b, &l, &p).0)
         })
@@ -200,21 +212,40 @@ fn sqlite_gives_the_same_multisets() {
     // keys stay below 2^63 so they fit its signed integers.
     let (b, l, _) = gen_pair(500, 3000, Dup::Fixed(3), KeySkew::Uniform);
     let db = rusqlite::Connection::open_in_memory().unwrap();
-    db.execute_batch("create table s(k integer, p integer); create table l(id integer, k integer, p integer);").unwrap();
+    db.execute_batch(
+        "create table s(k integer, p integer); create table l(id integer, k integer, p integer);",
+    )
+    .unwrap();
     let get = |t: &Table, c: &str, i: usize| match &t.column(c).unwrap().data {
         ColumnData::U64(v) => v[i],
         _ => unreachable!(),
     };
     for i in 0..b.rows() {
-        db.execute("insert into s values (?1, ?2)", (get(&b, "key", i) as i64, get(&b, "payload", i) as i64)).unwrap();
+        db.execute(
+            "insert into s values (?1, ?2)",
+            (get(&b, "key", i) as i64, get(&b, "payload", i) as i64),
+        )
+        .unwrap();
     }
     for i in 0..l.rows() {
-        db.execute("insert into l values (?1, ?2, ?3)", (i as i64, get(&l, "key", i) as i64, get(&l, "payload", i) as i64)).unwrap();
+        db.execute(
+            "insert into l values (?1, ?2, ?3)",
+            (
+                i as i64,
+                get(&l, "key", i) as i64,
+                get(&l, "payload", i) as i64,
+            ),
+        )
+        .unwrap();
     }
     let rows = |sql: &str, n: usize| -> Vec<Vec<u64>> {
         let mut st = db.prepare(sql).unwrap();
         let mut v: Vec<Vec<u64>> = st
-            .query_map([], |r| (0..n).map(|i| r.get::<_, i64>(i).map(|x| x as u64)).collect())
+            .query_map([], |r| {
+                (0..n)
+                    .map(|i| r.get::<_, i64>(i).map(|x| x as u64))
+                    .collect()
+            })
             .unwrap()
             .map(Result::unwrap)
             .collect();
@@ -227,17 +258,34 @@ fn sqlite_gives_the_same_multisets() {
         let (out, _) = mirror(&b, &l, &p).unwrap();
         let mut v: Vec<Vec<u64>> = out
             .chunks(8 * n)
-            .map(|r| r.chunks(8).map(|x| u64::from_le_bytes(x.try_into().unwrap())).collect())
+            .map(|r| {
+                r.chunks(8)
+                    .map(|x| u64::from_le_bytes(x.try_into().unwrap()))
+                    .collect()
+            })
             .collect();
         v.sort();
         v
     };
-    let inner = Variant::Inner(vec![OutField::ProbeRowId, OutField::ProbePayload, OutField::BuildPayload]);
+    let inner = Variant::Inner(vec![
+        OutField::ProbeRowId,
+        OutField::ProbePayload,
+        OutField::BuildPayload,
+    ]);
     let sql_inner = rows("select l.id, l.p, s.p from l join s on l.k = s.k", 3);
     assert!(!sql_inner.is_empty());
     assert_eq!(ours(inner, 3), sql_inner);
-    assert_eq!(ours(Variant::Semi, 1), rows("select id from l where exists (select 1 from s where s.k = l.k)", 1));
-    assert_eq!(ours(Variant::Count, 1), rows("select count(*) from l join s on l.k = s.k", 1));
+    assert_eq!(
+        ours(Variant::Semi, 1),
+        rows(
+            "select id from l where exists (select 1 from s where s.k = l.k)",
+            1
+        )
+    );
+    assert_eq!(
+        ours(Variant::Count, 1),
+        rows("select count(*) from l join s on l.k = s.k", 1)
+    );
 }
 
 #[test]
@@ -248,7 +296,10 @@ fn crc32c_agrees_with_the_crate() {
         assert_eq!(crc32c(&data), crc32c::crc32c(&data), "len {len}");
     }
     for k in [0u64, 1, 0xDEAD_BEEF, u64::MAX] {
-        assert_eq!(HashFn::Crc32c.hash(k, 64), u64::from(crc32c::crc32c(&k.to_le_bytes())));
+        assert_eq!(
+            HashFn::Crc32c.hash(k, 64),
+            u64::from(crc32c::crc32c(&k.to_le_bytes()))
+        );
     }
 }
 
@@ -256,17 +307,24 @@ fn crc32c_agrees_with_the_crate() {
 fn fmix32_agrees_with_mmh3() {
     // `mmh3` (PyPI): MurmurHash3_x86_32 of the empty input with seed s is fmix32(s).
     let script = "import mmh3\nfor s in [0, 1, 2, 42, 0xdeadbeef, 0xffffffff]: print(mmh3.hash(b'', s, signed=False))";
-    let out = std::process::Command::new("python3").args(["-c", script]).output();
+    let out = std::process::Command::new("python3")
+        .args(["-c", script])
+        .output();
     let ok = matches!(&out, Ok(o) if o.status.success());
     if !ok {
         let required = std::env::var("WEIR_REQUIRE_EXTERNAL").is_ok_and(|v| v == "1");
-        assert!(!required, "python3 mmh3 not found, but WEIR_REQUIRE_EXTERNAL=1");
+        assert!(
+            !required,
+            "python3 mmh3 not found, but WEIR_REQUIRE_EXTERNAL=1"
+        );
         println!("skipped: python3 mmh3 not found");
         return;
     }
     let text = String::from_utf8(out.unwrap().stdout).unwrap();
     let got: Vec<u32> = text.lines().map(|l| l.trim().parse().unwrap()).collect();
-    let want: Vec<u32> = [0u32, 1, 2, 42, 0xdead_beef, 0xffff_ffff].map(fmix32).to_vec();
+    let want: Vec<u32> = [0u32, 1, 2, 42, 0xdead_beef, 0xffff_ffff]
+        .map(fmix32)
+        .to_vec();
     assert_eq!(got, want);
 }
 
@@ -285,7 +343,10 @@ fn edge_cases() {
     assert_eq!(mirror(&some, &all, &semi).unwrap().1, 4);
     let mut count = p.clone();
     count.variant = Variant::Count;
-    assert_eq!(mirror(&empty, &some, &count).unwrap(), (0u64.to_le_bytes().to_vec(), 1));
+    assert_eq!(
+        mirror(&empty, &some, &count).unwrap(),
+        (0u64.to_le_bytes().to_vec(), 1)
+    );
 }
 
 #[test]
@@ -304,7 +365,10 @@ fn one_key_with_very_many_duplicates_streams() {
     assert_eq!(r.records, 9_000_000);
     assert_eq!(bytes, 9_000_000 * 32);
     assert!(largest < 64 << 20, "a chunk of {largest} bytes");
-    assert_eq!(r.blocks[0].longest_probe as u64, r.blocks[0].rows.div_ceil(4) + 1);
+    assert_eq!(
+        r.blocks[0].longest_probe as u64,
+        r.blocks[0].rows.div_ceil(4) + 1
+    );
 }
 
 #[test]
@@ -314,16 +378,25 @@ fn bad_input_errors() {
     p.overflow = Overflow::Area(10);
     p.buckets = Buckets::Bits(4);
     let e = mirror(&b, &b, &p).unwrap_err();
-    assert_eq!(e.to_string(), "block 0: overflow area of 10 slots is full when inserting key 1");
+    assert_eq!(
+        e.to_string(),
+        "block 0: overflow area of 10 slots is full when inserting key 1"
+    );
     let narrow = table("l", vec![1], vec![0], false);
     let e = mirror(&b, &narrow, &params(true)).unwrap_err();
     assert!(matches!(e, JoinError::KeyTypes { .. }), "{e}");
     let mut q = params(true);
     q.probe_key = "id".into();
-    assert_eq!(mirror(&b, &b, &q).unwrap_err().to_string(), "probe table `s` has no column `id`");
+    assert_eq!(
+        mirror(&b, &b, &q).unwrap_err().to_string(),
+        "probe table `s` has no column `id`"
+    );
     q = params(true);
     q.capacity_bytes = 10;
-    assert!(matches!(mirror(&b, &b, &q), Err(JoinError::CapacityTooSmall { .. })));
+    assert!(matches!(
+        mirror(&b, &b, &q),
+        Err(JoinError::CapacityTooSmall { .. })
+    ));
 }
 
 #[test]
@@ -343,14 +416,25 @@ fn image_and_stats_of_a_small_table() {
     let want = [slot(2, 20), slot(4, 40), slot(6, 60), vec![0; 12]].concat();
     assert_eq!(r.images, vec![want]);
     let s = &r.blocks[0];
-    assert_eq!((s.occupancy.clone(), s.longest_probe, s.overflowed), (vec![0, 1, 1], 2, 1));
+    assert_eq!(
+        (s.occupancy.clone(), s.longest_probe, s.overflowed),
+        (vec![0, 1, 1], 2, 1)
+    );
     assert_eq!(s.load_factor, 0.75);
 }
 
 #[test]
 fn generator_is_pinned_and_partition_free() {
-    let g = JoinGen { seed: 5, build_rows: 1000, probe_rows: 10_000, key_type: ElemType::U32,
-        payload_type: ElemType::U64, dup: Dup::Geometric(1.5), match_rate: 0.25, skew: KeySkew::Zipf(1.0) };
+    let g = JoinGen {
+        seed: 5,
+        build_rows: 1000,
+        probe_rows: 10_000,
+        key_type: ElemType::U32,
+        payload_type: ElemType::U64,
+        dup: Dup::Geometric(1.5),
+        match_rate: 0.25,
+        skew: KeySkew::Zipf(1.0),
+    };
     let b = g.build().unwrap();
     let whole = g.probe(&b, 0..10_000);
     let a = g.probe(&b, 0..3333);
@@ -371,5 +455,8 @@ fn generator_is_pinned_and_partition_free() {
     let hex: String = h.finalize().iter().map(|x| format!("{x:02x}")).collect();
     // Pinned from the generator's output when it was written: any change to the bytes a
     // seed gives (on any machine, thread or partition count) fails here.
-    assert_eq!(hex, "a279b6842240b826e63b741c8366fb9f11aaf4767b4ce8a32244e319b13aa796");
+    assert_eq!(
+        hex,
+        "a279b6842240b826e63b741c8366fb9f11aaf4767b4ce8a32244e319b13aa796"
+    );
 }

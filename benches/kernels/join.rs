@@ -24,7 +24,9 @@ pub fn bench(c: &mut Criterion) {
         bch.iter(|| {
             out.clear();
             let sink = &mut |c: &[u8]| out.extend_from_slice(c);
-            join_engine(&b, &l, 0, &p, &JoinIo::host(), sink).unwrap().records
+            join_engine(&b, &l, 0, &p, &JoinIo::host(), sink)
+                .unwrap()
+                .records
         })
     });
     g.finish();

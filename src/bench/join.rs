@@ -80,7 +80,10 @@ fn read_pass(l: &Table) -> u64 {
     l.columns
         .iter()
         .map(|c| match &c.data {
-            ColumnData::U64(v) => v.par_chunks(1 << 16).map(|c| c.iter().fold(0u64, |a, &x| a ^ x)).reduce(|| 0, |a, b| a ^ b),
+            ColumnData::U64(v) => v
+                .par_chunks(1 << 16)
+                .map(|c| c.iter().fold(0u64, |a, &x| a ^ x))
+                .reduce(|| 0, |a, b| a ^ b),
             _ => 0,
         })
         .fold(0, |a, b| a ^ b)
@@ -104,7 +107,10 @@ pub fn bench_join(
     let mut out: Vec<u8> = Vec::new();
     let mut points = Vec::new();
     for (i, &t) in p.threads.iter().enumerate() {
-        let pool = rayon::ThreadPoolBuilder::new().num_threads(t).build().expect("thread pool");
+        let pool = rayon::ThreadPoolBuilder::new()
+            .num_threads(t)
+            .build()
+            .expect("thread pool");
         let (mut refs, mut fast, mut mirror) = (Vec::new(), Vec::new(), Vec::new());
         let mut pairs = 0;
         pool.install(|| {
@@ -159,8 +165,20 @@ pub fn to_csv(points: &[JoinPoint]) -> String {
     for p in points {
         s.push_str(&format!(
             "{},{},{},{:.6},{:.6},{:.6},{:.2},{:.3},{:.3},{:.3},{:.3},{:.3},{:.6},{:.2}\n",
-            p.threads, p.pairs, p.fast.runs, p.fast.median_s, p.fast.min_s, p.fast.max_s, p.mprobes,
-            p.gbps, p.read_gbps, p.ratio, p.ratio_min, p.ratio_max, p.mirror.median_s, p.mirror_mprobes
+            p.threads,
+            p.pairs,
+            p.fast.runs,
+            p.fast.median_s,
+            p.fast.min_s,
+            p.fast.max_s,
+            p.mprobes,
+            p.gbps,
+            p.read_gbps,
+            p.ratio,
+            p.ratio_min,
+            p.ratio_max,
+            p.mirror.median_s,
+            p.mirror_mprobes
         ));
     }
     s
@@ -178,7 +196,10 @@ pub fn chart(points: &[JoinPoint], build_rows: u64, probe_rows: u64) -> crate::p
         x_label: "threads".into(),
         y_label: "M probe tuples/s (median)".into(),
         x: points.iter().map(|p| p.threads.to_string()).collect(),
-        series: vec![series("fast join", &|p| p.mprobes), series("mirror join", &|p| p.mirror_mprobes)],
+        series: vec![
+            series("fast join", &|p| p.mprobes),
+            series("mirror join", &|p| p.mirror_mprobes),
+        ],
         references: Vec::new(),
     }
 }

@@ -44,8 +44,17 @@ fn skew(s: &str) -> Result<KeySkew> {
     }
 }
 
-fn files(prefix: &std::path::Path, side: &str, t: &Table, npy: bool) -> Result<Vec<(std::path::PathBuf, Vec<u8>)>> {
-    let stem = prefix.file_name().unwrap_or_default().to_string_lossy().to_string();
+fn files(
+    prefix: &std::path::Path,
+    side: &str,
+    t: &Table,
+    npy: bool,
+) -> Result<Vec<(std::path::PathBuf, Vec<u8>)>> {
+    let stem = prefix
+        .file_name()
+        .unwrap_or_default()
+        .to_string_lossy()
+        .to_string();
     if !npy {
         let path = prefix.with_file_name(format!("{stem}-{side}.csv"));
         let mut v = Vec::new();
@@ -80,7 +89,10 @@ pub fn gen_join(a: GenJoinArgs) -> Result<Outcome> {
     let mut out = files(&a.out, "build", &b.table, a.npy)?;
     out.extend(files(&a.out, "probe", &l.table, a.npy)?);
     if let Some((p, _)) = out.iter().find(|(p, _)| p.exists() && !a.force) {
-        return Err(Error::exists(format!("{} exists; add --force to replace it", p.display())));
+        return Err(Error::exists(format!(
+            "{} exists; add --force to replace it",
+            p.display()
+        )));
     }
     for (p, bytes) in &out {
         write_file_atomic(p, bytes, a.force)?;

@@ -11,10 +11,10 @@ macro_rules! say {
 
 pub mod args;
 mod bench;
+mod bench_join;
 mod check;
 mod gen;
 mod gen_join;
-mod bench_join;
 mod run;
 
 use std::process::ExitCode;

@@ -97,26 +97,34 @@ impl JoinGen {
     pub fn validate(&self) -> Result<(), String> {
         for (what, t) in [("key", self.key_type), ("payload", self.payload_type)] {
             if !matches!(t, ElemType::U32 | ElemType::U64) {
-                return Err(format!("{what} type {t}: the join generator makes u32 or u64"));
+                return Err(format!(
+                    "{what} type {t}: the join generator makes u32 or u64"
+                ));
             }
         }
         if !(0.0..=1.0).contains(&self.match_rate) {
-            return Err(format!("match rate {} must be within 0..=1", self.match_rate));
+            return Err(format!(
+                "match rate {} must be within 0..=1",
+                self.match_rate
+            ));
         }
         match self.dup {
             Dup::Fixed(0) => return Err("duplicate count must be at least 1".into()),
-            Dup::Geometric(m) if !(m >= 1.0) => {
+            Dup::Geometric(m) if m.is_nan() || m < 1.0 => {
                 return Err(format!("geometric duplicate mean {m} must be at least 1"))
             }
             _ => {}
         }
         if let KeySkew::Zipf(t) = self.skew {
-            if !(t >= 0.0) {
+            if t.is_nan() || t < 0.0 {
                 return Err(format!("Zipf theta {t} must be at least 0"));
             }
         }
-        if self.key_type == ElemType::U32 && self.build_rows + self.probe_rows > u64::from(u32::MAX) {
-            return Err("u32 keys: |S| + |L| must stay below 2^32 so non-matching keys exist".into());
+        if self.key_type == ElemType::U32 && self.build_rows + self.probe_rows > u64::from(u32::MAX)
+        {
+            return Err(
+                "u32 keys: |S| + |L| must stay below 2^32 so non-matching keys exist".into(),
+            );
         }
         Ok(())
     }
@@ -162,17 +170,24 @@ impl JoinGen {
         let mut keys = Vec::with_capacity(n as usize);
         for (d, &c) in counts.iter().enumerate() {
             let k = self.key(d as u64);
-            keys.extend(std::iter::repeat(k).take(c as usize));
+            keys.extend(std::iter::repeat_n(k, c as usize));
         }
         let table = Table::new(
             "build",
-            vec![typed("key", self.key_type, keys), self.payload_col("build", 0..n)],
+            vec![
+                typed("key", self.key_type, keys),
+                self.payload_col("build", 0..n),
+            ],
         )?;
         let zipf = match self.skew {
             KeySkew::Zipf(t) if !counts.is_empty() => Some(Zipf::new(counts.len() as u64, t)),
             _ => None,
         };
-        Ok(BuildSide { table, counts, zipf })
+        Ok(BuildSide {
+            table,
+            counts,
+            zipf,
+        })
     }
 
     /// Probe rows `rows` against the build side `b`.
@@ -198,7 +213,10 @@ impl JoinGen {
         let keys = idx.iter().map(|&d| self.key(d)).collect();
         let table = Table::new(
             "probe",
-            vec![typed("key", self.key_type, keys), self.payload_col("probe", rows)],
+            vec![
+                typed("key", self.key_type, keys),
+                self.payload_col("probe", rows),
+            ],
         )
         .expect("equal columns");
         ProbePart {

@@ -90,7 +90,9 @@ pub fn plan_blocks(build_rows: u64, p: &JoinParams) -> Result<BlockPlan, JoinErr
     check_type(p.key_type, "key")?;
     check_type(p.build_payload_type, "build payload")?;
     if p.slots_per_bucket == 0 {
-        return Err(JoinError::Shape("slots per bucket must be at least 1".into()));
+        return Err(JoinError::Shape(
+            "slots per bucket must be at least 1".into(),
+        ));
     }
     let slot = SlotFormat::new(p.key_type, p.build_payload_type);
     let sb = slot.slot_bytes();
@@ -133,7 +135,7 @@ pub fn plan_blocks(build_rows: u64, p: &JoinParams) -> Result<BlockPlan, JoinErr
             (k, (1u64 << k) * spb)
         }
         Buckets::LoadFactor(f) => {
-            if !(f > 0.0 && f <= 1.0) {
+            if f.is_nan() || f <= 0.0 || f > 1.0 {
                 return Err(JoinError::Shape(format!(
                     "load factor {f} must be in (0, 1]"
                 )));

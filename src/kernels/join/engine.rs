@@ -25,7 +25,7 @@ use crate::table::{Column, ColumnData, ElemType, Table};
 /// Probe rows per chunk of work.
 pub const CHUNK_ROWS: usize = 1 << 14;
 
-/// Probe rows between checks of a chunk's output size.
+/// The most probe rows between checks of a chunk's output size.
 const SUB_ROWS: usize = 1 << 10;
 
 /// Output bytes after which a chunk hands its records to the sink before going on.
@@ -103,7 +103,12 @@ impl<'a> Cols<'a> {
         }
         for (side, column, found, planned) in [
             ("build", &p.build_key, cols.bkey.ty(), p.key_type),
-            ("build", &p.build_payload, cols.bpay.ty(), p.build_payload_type),
+            (
+                "build",
+                &p.build_payload,
+                cols.bpay.ty(),
+                p.build_payload_type,
+            ),
         ] {
             if found != planned {
                 return Err(JoinError::PlannedType {
@@ -240,15 +245,30 @@ pub(crate) fn drive<T: BlockTable>(
         let table = make(b, &keys, &pays, &mut ocr, &mut ocw)?;
         built(b, &table);
         if !p.broadcast_build || e == 0 {
-            put(&mut ledger, Key::device(e, bp, io.build_channel, Direction::Read), sk.traffic);
-            put(&mut ledger, Key::device(e, bp, io.build_channel, Direction::Read), sp.traffic);
+            put(
+                &mut ledger,
+                Key::device(e, bp, io.build_channel, Direction::Read),
+                sk.traffic,
+            );
+            put(
+                &mut ledger,
+                Key::device(e, bp, io.build_channel, Direction::Read),
+                sp.traffic,
+            );
         }
-        put(&mut ledger, on(e, bp, Region::OnChip, Direction::Write), ocw);
+        put(
+            &mut ledger,
+            on(e, bp, Region::OnChip, Direction::Write),
+            ocw,
+        );
         put(&mut ledger, on(e, bp, Region::OnChip, Direction::Read), ocr);
         for first in (0..chunks).step_by(wave.max(1)) {
             let n = wave.min(chunks - first);
             let pieces: Vec<&mut [u64]> = if semi {
-                seen.chunks_mut(CHUNK_ROWS / 64).skip(first).take(n).collect()
+                seen.chunks_mut(CHUNK_ROWS / 64)
+                    .skip(first)
+                    .take(n)
+                    .collect()
             } else {
                 (0..n).map(|_| &mut [][..]).collect()
             };
@@ -266,7 +286,11 @@ pub(crate) fn drive<T: BlockTable>(
                     out.touch(o.buf.len() as u64, o.records);
                     records += o.records;
                     matches += o.matches;
-                    put(&mut ledger, on(e, pp, Region::OnChip, Direction::Read), o.onchip);
+                    put(
+                        &mut ledger,
+                        on(e, pp, Region::OnChip, Direction::Read),
+                        o.onchip,
+                    );
                     let lk = Key::device(e, pp, io.probe_channel, Direction::Read);
                     put(&mut ledger, lk, o.key);
                     if reads_pay {
@@ -289,7 +313,11 @@ pub(crate) fn drive<T: BlockTable>(
             }
         }
         let written = std::mem::replace(&mut out.traffic, Traffic::default());
-        put(&mut ledger, Key::device(e, pp, io.out_channel, Direction::Write), written);
+        put(
+            &mut ledger,
+            Key::device(e, pp, io.out_channel, Direction::Write),
+            written,
+        );
     }
     if matches!(p.variant, Variant::Count) {
         let phase = Phase::nth("probe", plan.blocks.len().saturating_sub(1) as u32);
@@ -297,10 +325,22 @@ pub(crate) fn drive<T: BlockTable>(
         out.touch(8, 1);
         records = 1;
         let written = std::mem::replace(&mut out.traffic, Traffic::default());
-        put(&mut ledger, Key::device(e, phase, io.out_channel, Direction::Write), written);
+        put(
+            &mut ledger,
+            Key::device(e, phase, io.out_channel, Direction::Write),
+            written,
+        );
     }
     let out_bytes = records * writer.record_bytes();
-    host_link(&mut ledger, cols, p, io, l_rows as u64, reads_pay, (records, out_bytes));
+    host_link(
+        &mut ledger,
+        cols,
+        p,
+        io,
+        l_rows as u64,
+        reads_pay,
+        (records, out_bytes),
+    );
     Ok(Driven {
         ledger,
         records,
@@ -330,7 +370,12 @@ fn host_link(
         }
     }
     if p.copyback {
-        let back = on(e, Phase::single("copyback"), Region::HostLink, Direction::Write);
+        let back = on(
+            e,
+            Phase::single("copyback"),
+            Region::HostLink,
+            Direction::Write,
+        );
         let mut c = Cursor::new(io.out_base, io.word_bytes);
         c.touch(out_bytes, records);
         put(ledger, back, c.traffic);
@@ -358,20 +403,47 @@ fn probe_chunk<T: BlockTable>(
 ) {
     o.buf.clear();
     let (kb, pb) = (cols.pkey.bytes(), cols.ppay.bytes());
-    let n = if from == chunk.start { chunk.len() as u64 } else { 0 };
+    let n = if from == chunk.start {
+        chunk.len() as u64
+    } else {
+        0
+    };
     let mut kc = Cursor::new(io.probe_key_base + chunk.start as u64 * kb, io.word_bytes);
     kc.touch(n * kb, n);
-    let mut pc = Cursor::new(io.probe_payload_base + chunk.start as u64 * pb, io.word_bytes);
+    let mut pc = Cursor::new(
+        io.probe_payload_base + chunk.start as u64 * pb,
+        io.word_bytes,
+    );
     pc.touch(n * pb, n);
     let mut onchip = Traffic::default();
     let (mut records, mut matches) = (0u64, 0u64);
     let mut at = from;
+    // Sub-slices start small and double while their output stays small, so one row with
+    // a large fan-out cannot push a chunk far past the limit.
+    let mut step = 16;
     while at < chunk.end && o.buf.len() < OUT_LIMIT {
-        let rows = at..(at + SUB_ROWS).min(chunk.end);
-        let (r, m) = probe_rows(cols, table, writer, p, start, rows.clone(), chunk.start, seen, &mut o.buf, &mut onchip);
+        let rows = at..(at + step).min(chunk.end);
+        let before = o.buf.len();
+        let (r, m) = probe_rows(
+            cols,
+            table,
+            writer,
+            p,
+            start,
+            rows.clone(),
+            chunk.start,
+            seen,
+            &mut o.buf,
+            &mut onchip,
+        );
         records += r;
         matches += m;
         at = rows.end;
+        if o.buf.len() - before < OUT_LIMIT / 16 {
+            step = (step * 2).min(SUB_ROWS);
+        } else {
+            step = (step / 2).max(1);
+        }
     }
     o.next = at;
     o.records = records;
@@ -405,20 +477,24 @@ fn probe_rows<T: BlockTable>(
     match p.variant {
         Variant::Inner(_) => table.probe_rows(keys, onchip, |r, spay| {
             let row = base + r;
-            writer.write(buf, start + row as u64, keys.get(r), cols.ppay.get(row), spay);
+            writer.write(
+                buf,
+                start + row as u64,
+                keys.get(r),
+                cols.ppay.get(row),
+                spay,
+            );
             matches += 1;
         }),
-        Variant::Semi => {
-            table.probe_rows(keys, onchip, |r, _| {
-                matches += 1;
-                let (w, bit) = ((seen_off + r) / 64, 1u64 << ((seen_off + r) % 64));
-                if seen[w] & bit == 0 {
-                    seen[w] |= bit;
-                    buf.extend_from_slice(&(start + (base + r) as u64).to_le_bytes());
-                    records += 1;
-                }
-            })
-        }
+        Variant::Semi => table.probe_rows(keys, onchip, |r, _| {
+            matches += 1;
+            let (w, bit) = ((seen_off + r) / 64, 1u64 << ((seen_off + r) % 64));
+            if seen[w] & bit == 0 {
+                seen[w] |= bit;
+                buf.extend_from_slice(&(start + (base + r) as u64).to_le_bytes());
+                records += 1;
+            }
+        }),
         Variant::Count => table.probe_rows(keys, onchip, |_, _| matches += 1),
     }
     if matches!(p.variant, Variant::Inner(_)) {

@@ -26,7 +26,9 @@ pub enum JoinError {
         ty: ElemType,
     },
     /// The two key columns (or a column and the job) disagree on type.
-    #[error("key types differ: build `{build_column}` is {build}, probe `{probe_column}` is {probe}")]
+    #[error(
+        "key types differ: build `{build_column}` is {build}, probe `{probe_column}` is {probe}"
+    )]
     KeyTypes {
         /// Build key column.
         build_column: String,

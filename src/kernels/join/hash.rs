@@ -189,7 +189,10 @@ mod tests {
 
     #[test]
     fn bucket_pick() {
-        assert_eq!(bucket_of(0xABCD_0000_0000_1234, 64, 16, BucketPick::Top), 0xABCD);
+        assert_eq!(
+            bucket_of(0xABCD_0000_0000_1234, 64, 16, BucketPick::Top),
+            0xABCD
+        );
         assert_eq!(
             bucket_of(0xABCD_0000_0000_1234, 64, 16, BucketPick::Bottom),
             0x1234

@@ -115,7 +115,12 @@ impl MirrorTable {
 
     #[inline]
     fn home(&self, key: u64) -> usize {
-        bucket_of(self.hash.hash(key, self.key_bits), self.width, self.bits, self.pick) as usize
+        bucket_of(
+            self.hash.hash(key, self.key_bits),
+            self.width,
+            self.bits,
+            self.pick,
+        ) as usize
     }
 
     #[inline]

@@ -131,11 +131,24 @@ pub fn fast_join(
     let make = |_: u32, keys: &[u64], pays: &[u64], _: &mut Traffic, _: &mut Traffic| {
         Ok(FastTable::build(keys, pays))
     };
-    let d = drive(&cols, probe_row_start, p, &JoinIo::host(), &plan, make, |_, _| {}, sink)?;
+    let d = drive(
+        &cols,
+        probe_row_start,
+        p,
+        &JoinIo::host(),
+        &plan,
+        make,
+        |_, _| {},
+        sink,
+    )?;
     Ok(d.records)
 }
 
 /// Field names and types of the records `p` produces for these tables.
-pub fn record_layout(build: &Table, probe: &Table, p: &JoinParams) -> Result<RecordLayout, JoinError> {
+pub fn record_layout(
+    build: &Table,
+    probe: &Table,
+    p: &JoinParams,
+) -> Result<RecordLayout, JoinError> {
     Ok(Cols::resolve(build, probe, p)?.writer(p).layout().clone())
 }

@@ -31,7 +31,10 @@ impl RecordWriter {
             OutField::ProbePayload => probe_pay,
             OutField::BuildPayload => build_pay,
         };
-        let mut layout: RecordLayout = fields.iter().map(|&f| (f.name().to_string(), ty(f))).collect();
+        let mut layout: RecordLayout = fields
+            .iter()
+            .map(|&f| (f.name().to_string(), ty(f)))
+            .collect();
         if matches!(variant, Variant::Count) {
             layout.push(("count".into(), ElemType::U64));
         }
@@ -51,7 +54,10 @@ impl RecordWriter {
 
     /// Bytes per record.
     pub fn record_bytes(&self) -> u64 {
-        self.layout.iter().map(|(_, t)| u64::from(t.bits() / 8)).sum()
+        self.layout
+            .iter()
+            .map(|(_, t)| u64::from(t.bits() / 8))
+            .sum()
     }
 
     /// Appends the record of one match.
