@@ -2,6 +2,7 @@
 
 use criterion::{criterion_group, criterion_main};
 
+mod join;
 mod memsys;
 mod scan;
 mod sgd;
@@ -9,6 +10,6 @@ mod sgd;
 criterion_group! {
     name = kernels;
     config = criterion::Criterion::default().sample_size(10);
-    targets = scan::bench, sgd::bench, memsys::bench
+    targets = scan::bench, sgd::bench, memsys::bench, join::bench
 }
 criterion_main!(kernels);

@@ -4,6 +4,7 @@
 pub mod calibrate;
 pub mod host;
 pub mod interleave;
+pub mod join;
 pub mod scan;
 pub mod sgd;
 pub mod stats;

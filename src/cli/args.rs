@@ -92,6 +92,8 @@ pub enum GenKind {
     Scan(GenScanArgs),
     /// Dense features and labels for the SGD kernel, with known true weights.
     Sgd(GenSgdArgs),
+    /// A build table S(key, payload) and a probe table L(key, payload) for the join.
+    Join(GenJoinArgs),
 }
 
 /// `weir gen sgd`.
@@ -199,6 +201,8 @@ pub enum BenchKind {
     Scan(BenchScanArgs),
     /// One epoch of squared-loss minibatch SGD per engine, one engine per thread.
     Sgd(BenchSgdArgs),
+    /// Hash join of unique u64 keys, every probe row matching, pairs materialised.
+    Join(BenchJoinArgs),
 }
 
 /// `weir bench sgd`.
@@ -300,4 +304,73 @@ pub struct PlanArgs {
 pub struct ReportArgs {
     /// A run's output directory (holding ledger.json; plan.json and *.svg when present).
     pub run_dir: PathBuf,
+}
+
+/// `weir gen join`.
+#[derive(Debug, Args)]
+pub struct GenJoinArgs {
+    /// Build rows |S|.
+    #[arg(long, default_value_t = 1 << 16)]
+    pub build_rows: u64,
+    /// Probe rows |L|.
+    #[arg(long, default_value_t = 1 << 20)]
+    pub probe_rows: u64,
+    /// Key type: u32 or u64.
+    #[arg(long, default_value = "u64")]
+    pub key_type: String,
+    /// Payload type: u32 or u64.
+    #[arg(long, default_value = "u64")]
+    pub payload_type: String,
+    /// S keys: unique, fixed:N (each key N times) or geometric:MEAN.
+    #[arg(long, default_value = "unique")]
+    pub dup: String,
+    /// Requested fraction of L rows with a partner in S.
+    #[arg(long, default_value_t = 0.5)]
+    pub match_rate: f64,
+    /// L key skew: uniform or zipf:THETA.
+    #[arg(long, default_value = "uniform")]
+    pub skew: String,
+    /// Seed.
+    #[arg(long, default_value_t = 1)]
+    pub seed: u64,
+    /// Output prefix: writes PREFIX-build.csv and PREFIX-probe.csv (or .npy per column
+    /// with --npy).
+    #[arg(long, value_name = "PREFIX")]
+    pub out: PathBuf,
+    /// Write one .npy per column instead of CSV.
+    #[arg(long)]
+    pub npy: bool,
+    /// Replace existing files.
+    #[arg(long)]
+    pub force: bool,
+}
+
+/// `weir bench join`.
+#[derive(Debug, Args)]
+pub struct BenchJoinArgs {
+    /// Thread counts to measure, comma-separated (default: 1 and all cores).
+    #[arg(long, value_delimiter = ',')]
+    pub threads: Option<Vec<usize>>,
+    /// Shape: a (|S| = 2^20, |L| = 2^24) or b (|S| = 2^24, |L| = 2^26).
+    #[arg(long, default_value = "a")]
+    pub shape: String,
+    /// Build rows (overrides the shape).
+    #[arg(long)]
+    pub build_rows: Option<u64>,
+    /// Probe rows (overrides the shape).
+    #[arg(long)]
+    pub probe_rows: Option<u64>,
+    /// Timed runs per point, after one warm-up.
+    #[arg(long, default_value_t = 5)]
+    pub runs: usize,
+    /// Write results to PREFIX.csv, PREFIX.json and PREFIX.svg.
+    #[arg(long, value_name = "PREFIX")]
+    pub out: Option<PathBuf>,
+    /// Also save the tables as PREFIX-{build,probe}-{key,payload}.npy (for
+    /// benches/compare/join.py).
+    #[arg(long, value_name = "PREFIX")]
+    pub save_npy: Option<PathBuf>,
+    /// Replace existing output files.
+    #[arg(long)]
+    pub force: bool,
 }

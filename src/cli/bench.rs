@@ -120,6 +120,7 @@ pub fn bench(a: BenchArgs) -> Result<Outcome> {
     match a.kind {
         BenchKind::Scan(s) => bench_scan(s),
         BenchKind::Sgd(s) => bench_sgd(s),
+        BenchKind::Join(j) => super::bench_join::bench_join(j),
     }
 }
 

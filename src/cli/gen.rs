@@ -6,6 +6,7 @@ use weir::gen::{ColumnGen, Dist, Shape, Skew, TableGen};
 use weir::{Error, Result};
 
 use super::args::{GenArgs, GenKind, GenScanArgs, GenSgdArgs};
+pub use super::gen_join::gen_join;
 use super::Outcome;
 
 /// `weir gen`.
@@ -13,6 +14,7 @@ pub fn gen(a: GenArgs) -> Result<Outcome> {
     match a.kind {
         GenKind::Scan(s) => gen_scan(s),
         GenKind::Sgd(s) => gen_sgd(s),
+        GenKind::Join(j) => gen_join(j),
     }
 }
 

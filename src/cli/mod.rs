@@ -13,8 +13,10 @@ macro_rules! say {
 
 pub mod args;
 mod bench;
+mod bench_join;
 mod check;
 mod gen;
+mod gen_join;
 mod plan;
 mod report;
 mod run;

@@ -3,6 +3,7 @@
 //! values of a row do not depend on how the table is partitioned.
 
 pub mod columns;
+pub mod join;
 pub mod rng;
 pub mod sgd;
 pub mod telemetry;

@@ -3,6 +3,7 @@
 //! into the runner through the seam in [`seam`]; [`KernelConfig`] is the one list of them.
 
 pub mod isa;
+pub mod join;
 pub mod predicate;
 pub mod scan;
 pub mod seam;
