@@ -439,7 +439,8 @@ fn place(
     let mut engines = Vec::new();
     for (p, &channel) in channels.iter().enumerate() {
         let rows: Vec<_> = ranges.iter().map(|r| r[p].clone()).collect();
-        let regions = kernel.regions(p as u32, &rows);
+        let whole: Vec<Option<&Table>> = tables.iter().map(|t| t.whole.as_ref()).collect();
+        let regions = kernel.regions(p as u32, &rows, &whole);
         for need in &regions {
             let id = RegionId::Output {
                 kernel: kernel.name().into(),

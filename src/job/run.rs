@@ -88,6 +88,7 @@ pub fn run_into(
     let mut ledger = Ledger::new();
     let mut parts = Vec::new();
     let mut goldens = Vec::new();
+    let mut notes = Vec::new();
     for e in 0..prep.engines.len() {
         let rows = timed(&mut clock.gen_s, || partition_rows(prep, e));
         timed(&mut clock.write_s, || {
@@ -104,6 +105,7 @@ pub fn run_into(
             kernel_s,
         });
         ledger.merge(&run.ledger);
+        notes.extend(run.notes.iter().cloned());
         goldens.push(run.outputs.iter().map(|o| o.name.clone()).collect());
         timed(&mut clock.write_s, || {
             write_goldens(&mut w, prep, e, &run.outputs)
@@ -117,7 +119,8 @@ pub fn run_into(
         write_records(&mut w, prep, &ledger, &goldens)
     })?;
     // The manifest and timing.json are not listed in the manifest.
-    let summary = summarize(prep, listed + 2, ledger, parts, &clock);
+    let mut summary = summarize(prep, listed + 2, ledger, parts, &clock);
+    summary.kernel_lines.extend(notes);
     w.unlisted("timing.json", timing_json(&summary).as_bytes())?;
     Ok(summary)
 }

@@ -41,6 +41,8 @@ pub fn value_at(col: &Column, r: usize) -> Value {
 pub enum KernelConfig {
     /// Predicate scan.
     Scan(scan::ScanConfig),
+    /// Blocked build/probe hash join.
+    Join(join::JoinConfig),
 }
 
 impl KernelConfig {
@@ -48,6 +50,7 @@ impl KernelConfig {
     pub fn bind(&self, tables: &[TableSchema]) -> Result<Arc<dyn Kernel>> {
         Ok(match self {
             KernelConfig::Scan(c) => Arc::new(c.bind(tables)?),
+            KernelConfig::Join(c) => Arc::new(c.bind(tables)?),
         })
     }
 }

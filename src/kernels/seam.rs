@@ -169,6 +169,9 @@ pub struct EngineRun {
     pub rows_in: u64,
     /// Result rows (matching rows, joined pairs), for the terminal summary.
     pub rows_out: u64,
+    /// Lines for the terminal about what the engine found (hash-table statistics); a
+    /// kernel whose findings are the same on every engine reports them on engine 0.
+    pub notes: Vec<String>,
 }
 
 /// A Verilog parameter a kernel publishes in the memory map (for example a predicate
@@ -215,8 +218,14 @@ pub trait Kernel: Send + Sync + std::fmt::Debug {
         Vec::new()
     }
 
-    /// The regions engine `engine` needs, given the rows of each of its inputs.
-    fn regions(&self, engine: u32, rows: &[Range<u64>]) -> Vec<RegionNeed>;
+    /// The regions engine `engine` needs, given the rows of each of its inputs and the
+    /// replicated tables whole (`None` for partitioned ones), in input order.
+    fn regions(
+        &self,
+        engine: u32,
+        rows: &[Range<u64>],
+        whole: &[Option<&Table>],
+    ) -> Vec<RegionNeed>;
 
     /// Runs one engine.
     fn run(&self, ctx: &EngineCtx<'_>) -> Result<EngineRun, KernelError>;

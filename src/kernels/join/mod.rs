@@ -21,6 +21,7 @@ pub mod hash;
 mod mirror;
 mod naive;
 mod params;
+mod plan;
 mod record;
 
 pub use block::{plan_blocks, BlockPlan, SlotFormat, SLOT_HEADER_BYTES};
@@ -34,6 +35,8 @@ pub use params::{Buckets, JoinIo, JoinParams, OutField, Overflow, Variant};
 pub use record::{RecordLayout, RecordWriter};
 
 use engine::{drive, BlockTable, Col, Cols};
+
+pub use plan::{JoinConfig, JoinKernel};
 
 use crate::ledger::{Ledger, Traffic};
 use crate::table::Table;

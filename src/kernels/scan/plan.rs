@@ -17,7 +17,7 @@ use crate::kernels::seam::{
     Arrays, EngineCtx, EngineRun, Field, Golden, Kernel, KernelError, MapParam, MapSection,
     RegionNeed, Share, Sizing, TableSchema, TableUse,
 };
-use crate::table::ElemType;
+use crate::table::{ElemType, Table};
 
 /// The scan's `[kernel]` keys.
 #[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
@@ -209,7 +209,12 @@ impl Kernel for ScanKernel {
             .collect()
     }
 
-    fn regions(&self, _engine: u32, rows: &[Range<u64>]) -> Vec<RegionNeed> {
+    fn regions(
+        &self,
+        _engine: u32,
+        rows: &[Range<u64>],
+        _whole: &[Option<&Table>],
+    ) -> Vec<RegionNeed> {
         let n = rows[0].end - rows[0].start;
         vec![
             RegionNeed {
@@ -254,6 +259,7 @@ impl Kernel for ScanKernel {
             ledger: res.ledger,
             rows_in: rows,
             rows_out: res.count,
+            notes: Vec::new(),
         })
     }
 
