@@ -18,7 +18,9 @@ use crate::job::outdir::OutDir;
 use crate::job::prepare::{InputTable, Prepared};
 use crate::kernels::seam::{Arrays, EngineCtx, EngineRun, EngineTable, Golden, Share};
 use crate::ledger::{Direction, Ledger};
-use crate::manifest::{FileEntry, Manifest, Role, MANIFEST_FILE, MANIFEST_FORMAT_VERSION};
+use crate::manifest::{
+    FieldEntry, FileEntry, Manifest, Role, MANIFEST_FILE, MANIFEST_FORMAT_VERSION,
+};
 use crate::table::{self, Table};
 
 /// What one engine did.
@@ -360,6 +362,16 @@ fn write_goldens(w: &mut RunFiles, prep: &Prepared, e: usize, outputs: &[Golden]
         elem: Some(o.elem.clone()),
         records: Some(o.records),
         record_bytes: Some(o.record_bytes),
+        fields: (o.fields.len() > 1).then(|| {
+            o.fields
+                .iter()
+                .map(|f| FieldEntry {
+                    name: f.name.clone(),
+                    elem: f.ty.name().into(),
+                    bits: f.ty.bits(),
+                })
+                .collect()
+        }),
         ..gold.clone()
     };
     let stem = |o: &Golden| format!("{}.p{e}.{}", prep.kernel.name(), o.name);
