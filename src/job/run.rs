@@ -21,6 +21,7 @@ use crate::ledger::{Direction, Ledger};
 use crate::manifest::{
     FieldEntry, FileEntry, Manifest, Role, MANIFEST_FILE, MANIFEST_FORMAT_VERSION,
 };
+use crate::memmap::MapGolden;
 use crate::table::{self, Table};
 
 /// What one engine did.
@@ -112,7 +113,17 @@ pub fn run_into(
             kernel_s,
         });
         ledger.merge(&run.ledger);
-        goldens.push(run.outputs.iter().map(|o| o.name.clone()).collect());
+        let wb = prep.map.word_bytes();
+        goldens.push(
+            run.outputs
+                .iter()
+                .map(|o| MapGolden {
+                    name: o.name.clone(),
+                    records: o.records,
+                    words: (o.bytes.len() as u64).div_ceil(wb),
+                })
+                .collect(),
+        );
         timed(&mut clock.write_s, || {
             write_goldens(&mut w, prep, e, &run.outputs)
         })?;
@@ -437,7 +448,7 @@ fn write_records(
     w: &mut RunFiles,
     prep: &Prepared,
     ledger: &Ledger,
-    goldens: &[Vec<String>],
+    goldens: &[Vec<MapGolden>],
 ) -> Result<usize> {
     let word_bits = prep.spec.layout.word_bits;
     let json = serde_json::to_string_pretty(&ledger.to_json(word_bits)).expect("json") + "\n";
