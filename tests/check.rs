@@ -25,8 +25,24 @@ fn run(t: &TempDir, job: &str) -> PathBuf {
     gold
 }
 
+/// Golden bytes from the `.bin` image, or from the `.hex` one when the job writes only hex.
 fn golden(gold: &Path, stem: &str) -> Vec<u8> {
-    std::fs::read(gold.join(format!("golden/{stem}.bin"))).unwrap()
+    let bin = gold.join(format!("golden/{stem}.bin"));
+    if bin.is_file() {
+        return std::fs::read(bin).unwrap();
+    }
+    let text = std::fs::read_to_string(gold.join(format!("golden/{stem}.hex"))).unwrap();
+    text.lines()
+        .map(|l| l.split("//").next().unwrap().trim())
+        .filter(|l| !l.is_empty() && !l.starts_with('@'))
+        .flat_map(|l| {
+            let mut b: Vec<u8> = (0..l.len() / 2)
+                .map(|i| u8::from_str_radix(&l[2 * i..2 * i + 2], 16).unwrap())
+                .collect();
+            b.reverse();
+            b
+        })
+        .collect()
 }
 
 fn ids(bytes: &[u8], n: usize) -> Vec<u32> {
@@ -383,15 +399,19 @@ fn bitmap_bits_past_the_last_row_are_noted() {
         .as_array()
         .unwrap()
         .iter()
-        .find(|f| f["role"] == "golden" && f["format"] == "bin" && f["column"] == "out")
-        .unwrap();
+        .find(|f| {
+            f["role"] == "golden" && f["column"] == "out" && f["records"].as_u64().unwrap() % 8 != 0
+        })
+        .expect("the job has a bitmap that ends inside a byte");
     let rows = f["records"].as_u64().unwrap();
     let path = f["path"].as_str().unwrap();
     let stem = path
         .trim_start_matches("golden/")
-        .trim_end_matches(".bin")
+        .rsplit_once('.')
+        .unwrap()
+        .0
         .to_string();
-    let mut b = std::fs::read(gold.join(path)).unwrap();
+    let mut b = golden(&gold, &stem);
     assert_ne!(rows % 8, 0, "the job's bitmap ends inside a byte");
     b[(rows / 8) as usize] |= 0x80;
     let p = t.join("bits.bin");
@@ -408,7 +428,7 @@ fn projected_records_show_as_fields_with_channel_addresses() {
     let t = TempDir::new("check-fields");
     let gold = run(&t, "data/jobs/readings-project.toml");
     let stem = "scan.p1.out";
-    let mut g = std::fs::read(gold.join(format!("golden/{stem}.bin"))).unwrap();
+    let mut g = golden(&gold, stem);
     g[0] ^= 0xff;
     let p = t.join("d.bin");
     std::fs::write(&p, g).unwrap();

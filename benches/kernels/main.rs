@@ -2,11 +2,12 @@
 
 use criterion::{criterion_group, criterion_main};
 
+mod check;
 mod scan;
 
 criterion_group! {
     name = kernels;
     config = criterion::Criterion::default().sample_size(10);
-    targets = scan::bench
+    targets = scan::bench, check::bench
 }
 criterion_main!(kernels);

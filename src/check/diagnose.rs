@@ -13,8 +13,8 @@
 //!  offset              one field differs by the partition's row start (global vs local ids)
 //!  stale               differing words equal another golden output's words at the same offsets
 //!  shifted             after record i the sequences align s records apart (dropped / extra)
+//!  bit                 the same single bit is all that differs in every differing word
 //!  offset              one field differs by the same constant in every differing record
-//!  bit                 one bit position differs in every differing word (stuck or flipped)
 //! ```
 
 use super::compare::{bytes_at, ordered};
@@ -63,8 +63,8 @@ pub fn diagnose(s: &Shape, c: &Context<'_>) -> Option<Diagnosis> {
         row_start_offset,
         stale,
         shifted,
-        offset,
         bit,
+        offset,
     ];
     let n = if c.shape_only {
         0
@@ -414,20 +414,18 @@ fn bit(s: &Shape, c: &Context<'_>) -> Option<Diagnosis> {
         return None;
     }
     let wb = s.word_bytes as usize;
-    let mut common = vec![0xffu8; wb];
-    let mut single = true;
-    for &w in &words {
+    // Every differing word must differ in exactly one bit, the same one.
+    let xor = |w: u64| -> Vec<u8> {
         let (g, d) = (gword(s, c.gold, w), c.dump.word(w as usize));
-        let pop: u32 = g.iter().zip(d).map(|(a, b)| (a ^ b).count_ones()).sum();
-        single &= pop == 1;
-        for (k, x) in common.iter_mut().enumerate() {
-            *x &= g[k] ^ d[k];
-        }
-    }
-    let byte = common.iter().position(|&x| x != 0)?;
-    if !(single || words.len() >= 3) {
+        g.iter().zip(d).map(|(a, b)| a ^ b).collect()
+    };
+    let first = xor(words[0]);
+    let ones: u32 = first.iter().map(|x| x.count_ones()).sum();
+    if ones != 1 || !words.iter().all(|&w| xor(w) == first) {
         return None;
     }
+    let byte = first.iter().position(|&x| x != 0)?;
+    let common = first;
     let b = byte * 8 + common[byte].trailing_zeros() as usize;
     let val = |buf: &[u8]| (buf[b / 8] >> (b % 8)) & 1;
     let vals: Vec<u8> = words
