@@ -112,7 +112,7 @@ pub fn trailing(shape: &Shape, dump: &WordDump) -> Option<String> {
     let end = shape.words * shape.word_bytes;
     let payload = shape.payload();
     let avail = (dump.words() as u64 * shape.word_bytes).min(end);
-    if shape.rec == 0 && shape.records % 8 != 0 && payload <= avail {
+    if shape.rec == 0 && !shape.records.is_multiple_of(8) && payload <= avail {
         let last = payload - 1;
         let w = (last / shape.word_bytes) as usize;
         let spare = dump.data[last as usize] >> (shape.records % 8);

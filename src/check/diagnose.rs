@@ -114,7 +114,7 @@ fn width(s: &Shape, c: &Context<'_>) -> Option<Diagnosis> {
     if (d.words() as u64) <= s.words {
         return None;
     }
-    (1..wb).rev().filter(|k| wb % k == 0).find_map(|k| {
+    (1..wb).rev().filter(|k| wb.is_multiple_of(*k)).find_map(|k| {
         let high_zero = (0..d.words()).all(|w| d.word(w)[k..].iter().all(|&b| b == 0));
         if !high_zero {
             return None;
@@ -150,7 +150,7 @@ fn truncated(s: &Shape, c: &Context<'_>) -> Option<Diagnosis> {
         return None;
     }
     let cut = t * s.word_bytes;
-    let whole = if s.rec == 0 { cut * 8 } else { cut / s.rec };
+    let whole = cut.checked_div(s.rec).unwrap_or(cut * 8);
     let head = Shape {
         records: whole.min(s.records),
         ..s.clone()
@@ -210,7 +210,7 @@ fn byte_order(s: &Shape, c: &Context<'_>) -> Option<Diagnosis> {
         (e, format!("each {e}-byte element")),
         (wb, format!("each {wb}-byte word")),
     ] {
-        if chunk < 2 || wb % chunk != 0 {
+        if chunk < 2 || !wb.is_multiple_of(chunk) {
             continue;
         }
         let swapped = |w: u64| {
@@ -413,7 +413,6 @@ fn bit(s: &Shape, c: &Context<'_>) -> Option<Diagnosis> {
     if words.is_empty() || !words.iter().all(|&w| written(c.dump, w)) {
         return None;
     }
-    let wb = s.word_bytes as usize;
     // Every differing word must differ in exactly one bit, the same one.
     let xor = |w: u64| -> Vec<u8> {
         let (g, d) = (gword(s, c.gold, w), c.dump.word(w as usize));
