@@ -92,10 +92,26 @@ pub struct FileEntry {
     /// Bytes per record in a golden output (0 for bitmaps).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub record_bytes: Option<u64>,
+    /// The named fields of a golden record, in byte order; written only for records of
+    /// several fields (projected columns, join pairs), so reports can show them by name.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub fields: Option<Vec<FieldEntry>>,
     /// Bytes of the file.
     pub bytes: u64,
     /// SHA-256 of the file, lowercase hex.
     pub sha256: String,
+}
+
+/// One field of a golden record.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct FieldEntry {
+    /// Field name.
+    pub name: String,
+    /// Element type name (`u32`, `i64`, …).
+    pub elem: String,
+    /// Width in bits.
+    pub bits: u32,
 }
 
 /// The whole manifest.

@@ -6,7 +6,13 @@
 //! Names: in a one-table job an engine's images are `P{e}_IN_{COLUMN}_*`; with several
 //! tables the table is part of the name, `P{e}_IN_{TABLE}_{COLUMN}_*` and
 //! `P{e}_{TABLE}_ROW_START`. Declared regions are `P{e}_{REGION}_BASE` (and
-//! `_CAPACITY_WORDS` when sized for the worst case), golden files `P{e}_{OUTPUT}_GOLDEN_HEX`.
+//! `_CAPACITY_WORDS` when sized for the worst case), golden files `P{e}_{OUTPUT}_GOLDEN_HEX`
+//! with their record and word counts `P{e}_{OUTPUT}_GOLDEN_RECORDS` / `_GOLDEN_WORDS` (where a
+//! testbench stops comparing or dumping). `CH{c}_EXTENT_WORDS` is the words of channel c from
+//! address 0 to the end of its last region, inputs and outputs alike (how much to dump).
+//!
+//! The parameters sit between `verilator lint_off UNUSEDPARAM` / `lint_on` pragmas, since
+//! a testbench uses only some of them; the file is clean under `verilator --lint-only -Wall`.
 //!
 //! File names are prefixed by the macro `WEIR_DIR` (default empty) because simulators open
 //! files relative to their working directory, which is often not the testbench's folder.
@@ -16,12 +22,23 @@ use std::fmt::Write as _;
 use crate::job::prepare::{InputTable, Prepared};
 use crate::kernels::seam::{Share, Sizing};
 
+/// One golden output of an engine, as the memory map lists it.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct MapGolden {
+    /// Output name (`out`, `count`).
+    pub name: String,
+    /// Records in the golden output.
+    pub records: u64,
+    /// Memory words of the golden image.
+    pub words: u64,
+}
+
 /// What the memory map is made from.
 pub struct MapInfo<'a> {
     /// The prepared job.
     pub prep: &'a Prepared,
-    /// The golden output names of each engine, in writing order.
-    pub goldens: &'a [Vec<String>],
+    /// The golden outputs of each engine, in writing order.
+    pub goldens: &'a [Vec<MapGolden>],
 }
 
 /// A 64-bit Verilog literal.
@@ -57,6 +74,7 @@ impl MapInfo<'_> {
         );
         let _ = writeln!(s, "// Addresses are byte addresses on their channel; word addresses are BASE / WEIR_WORD_BYTES.");
         s.push_str("`ifndef WEIR_DIR\n`define WEIR_DIR \"\"\n`endif\n");
+        s.push_str("/* verilator lint_off UNUSEDPARAM */\n");
         let _ = writeln!(
             s,
             "localparam integer WEIR_WORD_BITS = {};",
@@ -70,21 +88,29 @@ impl MapInfo<'_> {
         );
         let _ = writeln!(s, "localparam integer WEIR_CHANNELS = {};", map.channels());
         for ch in 0..map.channels() {
-            let end = map
-                .regions()
-                .iter()
-                .filter(|r| r.channel == ch && r.id.is_input())
-                .map(|r| r.word_addr(wb) + r.words)
-                .max();
-            let Some(end) = end.filter(|_| p.spec.output.channel_images) else {
+            let end = |inputs_only: bool| {
+                map.regions()
+                    .iter()
+                    .filter(|r| r.channel == ch && (r.id.is_input() || !inputs_only))
+                    .map(|r| r.word_addr(wb) + r.words)
+                    .max()
+            };
+            let Some(extent) = end(false) else {
                 continue;
             };
             let _ = writeln!(s, "// channel {ch}");
+            if let Some(inputs) = end(true).filter(|_| p.spec.output.channel_images) {
+                let _ = writeln!(
+                    s,
+                    "localparam CH{ch}_HEX = {{`WEIR_DIR, \"input/ch{ch}.hex\"}};"
+                );
+                let _ = writeln!(s, "localparam [63:0] CH{ch}_WORDS = {};", dec64(inputs));
+            }
             let _ = writeln!(
                 s,
-                "localparam CH{ch}_HEX = {{`WEIR_DIR, \"input/ch{ch}.hex\"}};"
+                "localparam [63:0] CH{ch}_EXTENT_WORDS = {};",
+                dec64(extent)
             );
-            let _ = writeln!(s, "localparam [63:0] CH{ch}_WORDS = {};", dec64(end));
         }
         for e in 0..p.engines.len() {
             self.engine_params(&mut s, e);
@@ -102,6 +128,7 @@ impl MapInfo<'_> {
                 );
             }
         }
+        s.push_str("/* verilator lint_on UNUSEDPARAM */\n");
         s
     }
 
@@ -189,15 +216,26 @@ impl MapInfo<'_> {
                 );
             }
         }
-        if hex {
-            for name in self.goldens.get(e).into_iter().flatten() {
+        for g in self.goldens.get(e).into_iter().flatten() {
+            let up = g.name.to_uppercase();
+            if hex {
                 let _ = writeln!(
                     s,
-                    "localparam P{e}_{}_GOLDEN_HEX = {{`WEIR_DIR, \"golden/{}.p{e}.{name}.hex\"}};",
-                    name.to_uppercase(),
-                    p.kernel.name()
+                    "localparam P{e}_{up}_GOLDEN_HEX = {{`WEIR_DIR, \"golden/{}.p{e}.{}.hex\"}};",
+                    p.kernel.name(),
+                    g.name
                 );
             }
+            let _ = writeln!(
+                s,
+                "localparam [63:0] P{e}_{up}_GOLDEN_RECORDS = {};",
+                dec64(g.records)
+            );
+            let _ = writeln!(
+                s,
+                "localparam [63:0] P{e}_{up}_GOLDEN_WORDS = {};",
+                dec64(g.words)
+            );
         }
     }
 

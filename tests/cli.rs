@@ -192,9 +192,9 @@ fn check_reports_matches_mismatches_and_ignored_words() {
     assert_eq!(o.code, 1, "{}", o.stdout);
     assert!(
         o.stdout.contains(&format!(
-            "record 2 (word 0, byte 8): expected {old}, found {}",
+            "byte 8): expected 0x{old:08x}, found 0x{:08x}",
             old + 1
-        )),
+        )) && o.stdout.contains("record 2 (word 0, channel word 0x"),
         "{}",
         o.stdout
     );
@@ -219,7 +219,8 @@ fn check_reports_matches_mismatches_and_ignored_words() {
     let o = weir(&["check", gold.to_str().unwrap(), p0.to_str().unwrap()]);
     assert_eq!(o.code, 1);
     assert!(
-        o.stdout.contains("record 0 (word 0, byte 0)") && o.stdout.contains("found missing"),
+        o.stdout.contains("record 0 (word 0, channel word 0x")
+            && o.stdout.contains("found missing"),
         "{}",
         o.stdout
     );

@@ -2,6 +2,8 @@
 //! byte; the ledger equals its closed form; outputs do not depend on thread count; SQLite,
 //! the `crc32c` crate and `mmh3` (PyPI) serve as outside references.
 
+mod util;
+
 use proptest::prelude::*;
 use sha2::{Digest, Sha256};
 
@@ -459,4 +461,67 @@ fn generator_is_pinned_and_partition_free() {
         hex,
         "a279b6842240b826e63b741c8366fb9f11aaf4767b4ce8a32244e319b13aa796"
     );
+}
+
+/// The join as a job: every output byte is the same for 1 and 2 threads, the golden
+/// pairs check against themselves, and the pair count equals SQLite's for the same
+/// tables (read back from the run's typed arrays).
+#[test]
+fn the_join_job_is_thread_invariant_and_agrees_with_sqlite() {
+    let t = util::TempDir::new("join-job");
+    let job = util::repo("data/jobs/registry-join.toml");
+    let mut trees = Vec::new();
+    for threads in ["1", "2"] {
+        let out = t.join(&format!("t{threads}"));
+        let o = util::weir(&[
+            "run",
+            job.to_str().unwrap(),
+            "--out",
+            out.to_str().unwrap(),
+            "--threads",
+            threads,
+        ]);
+        assert_eq!(o.code, 0, "{}", o.stderr);
+        let tree: Vec<_> = util::tree(&out)
+            .into_iter()
+            .filter(|(p, _)| p != "timing.json")
+            .collect();
+        trees.push(tree);
+    }
+    assert_eq!(trees[0], trees[1], "output depends on the thread count");
+    let out = t.join("t1");
+    let o = util::weir(&[
+        "check",
+        out.to_str().unwrap(),
+        out.join("golden").to_str().unwrap(),
+    ]);
+    assert_eq!(o.code, 0, "{}", o.stdout);
+    // Reference: SQLite's inner join over the same keys (rusqlite, bundled SQLite).
+    let read_u32 = |rel: &str| -> Vec<u32> {
+        let bytes = std::fs::read(out.join(rel)).unwrap();
+        let (_, data) = weir::npy::read_npy(&bytes).unwrap();
+        data.chunks_exact(4)
+            .map(|c| u32::from_le_bytes(c.try_into().unwrap()))
+            .collect()
+    };
+    let db = rusqlite::Connection::open_in_memory().unwrap();
+    db.execute_batch("create table s(k integer); create table l(k integer);")
+        .unwrap();
+    for k in read_u32("arrays/registry.turbine_id.npy") {
+        db.execute("insert into s values (?1)", [k]).unwrap();
+    }
+    let mut ours = 0u64;
+    for p in 0..4 {
+        for k in read_u32(&format!("arrays/readings.p{p}.turbine_id.npy")) {
+            db.execute("insert into l values (?1)", [k]).unwrap();
+        }
+        let count = std::fs::read(out.join(format!("golden/join.p{p}.count.bin"))).unwrap();
+        ours += u64::from_le_bytes(count[..8].try_into().unwrap());
+    }
+    let sqlite: u64 = db
+        .query_row("select count(*) from l join s on l.k = s.k", [], |r| {
+            r.get(0)
+        })
+        .unwrap();
+    assert_eq!(ours, sqlite);
 }

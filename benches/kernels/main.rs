@@ -2,6 +2,7 @@
 
 use criterion::{criterion_group, criterion_main};
 
+mod check;
 mod join;
 mod memsys;
 mod scan;
@@ -10,6 +11,6 @@ mod sgd;
 criterion_group! {
     name = kernels;
     config = criterion::Criterion::default().sample_size(10);
-    targets = scan::bench, sgd::bench, memsys::bench, join::bench
+    targets = scan::bench, sgd::bench, memsys::bench, join::bench, check::bench
 }
 criterion_main!(kernels);

@@ -263,9 +263,12 @@ set -e
 echo "$report"
 [ "$rc" -ne 0 ] || die "weir check reported a match for the off-by-one variant"
 [ "$rc" -eq 1 ] || die "weir check failed on the off-by-one variant's dump (exit $rc, expected 1 = mismatch)"
-# The report must flag partition $bad_part's output and list record $bad_record first.
-named="$(awk -v stem="scan.p$bad_part.out" '
-    index($0, stem) && /differ/ { flagged = 1; next }
+# The report must flag partition $bad_part's output in its summary table and list record
+# $bad_record first in that output's details.
+grep -qE "^scan\.p$bad_part\.out +.*MISMATCH" <<<"$report" ||
+    die "weir check's summary does not flag scan.p$bad_part.out"
+named="$(awk -v stem="scan.p$bad_part.out: read" '
+    index($0, stem) == 1 { flagged = 1; next }
     flagged && match($0, /record [0-9]+/) { print substr($0, RSTART + 7, RLENGTH - 7); exit }' <<<"$report")"
 [ -n "$named" ] || die "weir check's report does not flag scan.p$bad_part.out with a differing record"
 [ "$named" = "$bad_record" ] ||

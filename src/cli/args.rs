@@ -65,13 +65,22 @@ pub struct InspectArgs {
 /// `weir check`.
 #[derive(Debug, Args)]
 pub struct CheckArgs {
-    /// A run's output directory (holding manifest.json and golden/).
+    /// A run's output directory (holding manifest.json and golden/), or its golden/.
     pub golden: PathBuf,
-    /// A directory of dumps named like the golden files (scan.p0.out.hex, …), or one dump.
+    /// One dump (any name with --output), a directory of dumps of any subset of outputs
+    /// named like the golden files (scan.p0.out.hex, …), or another run's directory.
     pub device: PathBuf,
+    /// The golden output to check (scan.p3.out); repeat for several. With one dump file,
+    /// names the output it holds.
+    #[arg(long = "output", value_name = "NAME")]
+    pub outputs: Vec<String>,
     /// Compare record outputs as multisets (for engines that emit in another order).
     #[arg(long)]
     pub unordered: bool,
+    /// Nonzero data after the last record inside the last word (bitmaps: bits past the
+    /// last row) is a mismatch, not a note.
+    #[arg(long)]
+    pub strict: bool,
     /// Print the report as JSON.
     #[arg(long)]
     pub json: bool,

@@ -61,8 +61,10 @@ pub fn check(a: CheckArgs) -> Result<Outcome> {
     let report = check::check(
         &a.golden,
         &a.device,
-        CheckOptions {
+        &CheckOptions {
             unordered: a.unordered,
+            strict: a.strict,
+            outputs: a.outputs,
         },
     )?;
     if a.json {

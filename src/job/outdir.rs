@@ -356,7 +356,7 @@ mod guard_tests {
         let mine = b.join(format!(".out{PARTIAL}1"));
         std::fs::create_dir_all(&mine).unwrap();
         let d = OutDir::create(&b.join("out"), false, &[]).unwrap();
-        assert_eq!(d.stale_removed(), [dead.clone()]);
+        assert_eq!(d.stale_removed(), std::slice::from_ref(&dead));
         assert!(!dead.exists() && mine.exists());
         drop(d);
         let _ = std::fs::remove_dir_all(&b);

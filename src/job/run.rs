@@ -18,7 +18,10 @@ use crate::job::outdir::OutDir;
 use crate::job::prepare::{InputTable, Prepared};
 use crate::kernels::seam::{Arrays, EngineCtx, EngineRun, EngineTable, Golden, Share};
 use crate::ledger::{Direction, Ledger};
-use crate::manifest::{FileEntry, Manifest, Role, MANIFEST_FILE, MANIFEST_FORMAT_VERSION};
+use crate::manifest::{
+    FieldEntry, FileEntry, Manifest, Role, MANIFEST_FILE, MANIFEST_FORMAT_VERSION,
+};
+use crate::memmap::MapGolden;
 use crate::table::{self, Table};
 
 /// What one engine did.
@@ -106,7 +109,17 @@ pub fn run_into(
         });
         ledger.merge(&run.ledger);
         notes.extend(run.notes.iter().cloned());
-        goldens.push(run.outputs.iter().map(|o| o.name.clone()).collect());
+        let wb = prep.map.word_bytes();
+        goldens.push(
+            run.outputs
+                .iter()
+                .map(|o| MapGolden {
+                    name: o.name.clone(),
+                    records: o.records,
+                    words: (o.bytes.len() as u64).div_ceil(wb),
+                })
+                .collect(),
+        );
         timed(&mut clock.write_s, || {
             write_goldens(&mut w, prep, e, &run.outputs)
         })?;
@@ -377,6 +390,16 @@ fn write_goldens(w: &mut RunFiles, prep: &Prepared, e: usize, outputs: &[Golden]
         elem: Some(o.elem.clone()),
         records: Some(o.records),
         record_bytes: Some(o.record_bytes),
+        fields: (o.fields.len() > 1).then(|| {
+            o.fields
+                .iter()
+                .map(|f| FieldEntry {
+                    name: f.name.clone(),
+                    elem: f.ty.name().into(),
+                    bits: f.ty.bits(),
+                })
+                .collect()
+        }),
         ..gold.clone()
     };
     let stem = |o: &Golden| format!("{}.p{e}.{}", prep.kernel.name(), o.name);
@@ -442,7 +465,7 @@ fn write_records(
     w: &mut RunFiles,
     prep: &Prepared,
     ledger: &Ledger,
-    goldens: &[Vec<String>],
+    goldens: &[Vec<MapGolden>],
 ) -> Result<usize> {
     let word_bits = prep.spec.layout.word_bits;
     let json = serde_json::to_string_pretty(&ledger.to_json(word_bits)).expect("json") + "\n";
