@@ -443,7 +443,7 @@ fn generator_is_pinned_and_partition_free() {
     let c = g.probe(&b, 3333..10_000);
     let mut joined = a.table.clone();
     for (x, y) in joined.columns.iter_mut().zip(&c.table.columns) {
-        x.data.append(&mut y.data.clone());
+        x.data.append(&y.data);
     }
     assert_eq!(joined, whole.table);
     assert_eq!(a.pairs + c.pairs, whole.pairs);

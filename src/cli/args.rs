@@ -292,8 +292,18 @@ pub struct DemoArgs {
 /// `weir plan`.
 #[derive(Debug, Args)]
 pub struct PlanArgs {
-    /// A run's output directory (holding ledger.json).
+    /// A run's output directory (holding ledger.json), or a job file (JOB.toml) to sweep.
     pub run_dir: PathBuf,
+    /// With a job file: a sweep axis, `engines=A..B` (A..=B engines) or
+    /// `placement=spread,packed`; each point runs the job ledger-only (no files).
+    #[arg(long, value_name = "AXIS=VALUES")]
+    pub sweep: Vec<String>,
+    /// With --sweep: the directory for sweep.csv and sweep.svg.
+    #[arg(long)]
+    pub out: Option<PathBuf>,
+    /// With --sweep: replace an earlier sweep directory.
+    #[arg(long)]
+    pub force: bool,
     /// A device preset (hbm2x2, ddr4x2) or a device description TOML file.
     #[arg(long)]
     pub device: String,

@@ -150,8 +150,120 @@ pub fn plan_dir(a: &PlanArgs) -> Result<(Plan, serde_json::Value)> {
     Ok((plan, json))
 }
 
+/// The points of `--sweep` axes: (series label, engines, placement name).
+fn sweep_points(axes: &[String]) -> Result<Vec<(String, u32, String)>> {
+    let mut engines: Vec<u32> = Vec::new();
+    let mut placements: Vec<String> = Vec::new();
+    for axis in axes {
+        let bad = || {
+            Error::input(format!(
+                "--sweep `{axis}`: expected engines=A..B or placement=spread,packed"
+            ))
+        };
+        let (k, v) = axis.split_once('=').ok_or_else(bad)?;
+        match k {
+            "engines" => {
+                let (a, b) = v.split_once("..").ok_or_else(bad)?;
+                let (a, b): (u32, u32) =
+                    (a.parse().map_err(|_| bad())?, b.parse().map_err(|_| bad())?);
+                if a == 0 || a > b || b > weir::job::limits::MAX_ENGINES {
+                    return Err(bad());
+                }
+                engines.extend(a..=b);
+            }
+            "placement" => placements.extend(v.split(',').map(str::to_string)),
+            _ => return Err(bad()),
+        }
+    }
+    if engines.is_empty() || placements.is_empty() {
+        return Err(Error::input(
+            "--sweep needs both an engines=A..B and a placement=… axis",
+        ));
+    }
+    Ok(placements
+        .iter()
+        .flat_map(|p| engines.iter().map(move |&e| (p.clone(), e, p.clone())))
+        .collect())
+}
+
+/// `weir plan JOB.toml --sweep …`: the job run ledger-only at every point, each ledger
+/// on the device, written as sweep.csv and sweep.svg into `--out`.
+fn plan_sweep(a: &PlanArgs) -> Result<Outcome> {
+    let out = a
+        .out
+        .as_ref()
+        .ok_or_else(|| Error::input("--sweep writes sweep.csv and sweep.svg: give --out DIR"))?;
+    let spec = weir::job::JobSpec::load(&a.run_dir)?;
+    let job_dir = a.run_dir.parent().unwrap_or(Path::new("."));
+    let device = Device::load(&a.device)?;
+    let mut points = Vec::new();
+    let axes = sweep_points(&a.sweep)?;
+    let pb = super::progress(axes.len() as u64, "points");
+    for (series, engines, placement) in axes {
+        let mut s = spec.clone();
+        s.layout.partitions = engines;
+        s.layout.placement = weir::job::spec::PlacementSpec::Name(placement);
+        s.layout.partition_rows = None;
+        let prep = weir::job::prepare(&s, job_dir)
+            .map_err(|e| e.context(format!("sweep point {series}, {engines} engines")))?;
+        let ledger = weir::job::ledger_only(&prep)?;
+        points.push(weir::memsys::sweep::SweepPoint {
+            series,
+            engines,
+            ledger,
+        });
+        pb.inc(1);
+    }
+    pb.finish_and_clear();
+    let rows = weir::memsys::sweep::sweep(&device, &points, spec.layout.word_bits)?;
+    let mut t = TextTable::new(&["placement", "engines", "predicted ms", "GB/s", "bottleneck"]);
+    for r in &rows {
+        t.row(vec![
+            r.series.clone(),
+            r.engines.to_string(),
+            format!("{:.4}", r.predicted_s * 1e3),
+            format!("{:.2}", r.aggregate_gbps),
+            r.bottleneck.clone(),
+        ]);
+    }
+    say!(
+        "sweep of {} on {} ({BOUND_NOTE})",
+        a.run_dir.display(),
+        device.name
+    );
+    say!("{}", t.render().trim_end());
+    let dir = weir::job::OutDir::create(out, a.force, &[a.run_dir.as_path()])?;
+    let csv = weir::memsys::sweep::sweep_csv(&rows);
+    let svg = weir::memsys::sweep::sweep_chart(&rows, &device.name).to_svg();
+    let mut files = Vec::new();
+    for (name, text) in [("sweep.csv", csv.as_bytes()), ("sweep.svg", svg.as_bytes())] {
+        let (bytes, sha256) = dir.write_all(name, text)?;
+        files.push(weir::manifest::FileEntry {
+            path: name.into(),
+            format: name.rsplit('.').next().unwrap_or("").into(),
+            bytes,
+            sha256,
+            ..Default::default()
+        });
+    }
+    let manifest = weir::manifest::Manifest {
+        format_version: weir::manifest::MANIFEST_FORMAT_VERSION,
+        tool_version: env!("CARGO_PKG_VERSION").into(),
+        job: serde_json::to_value(&spec).unwrap_or_default(),
+        word_bits: spec.layout.word_bits,
+        files,
+    };
+    dir.write_all(weir::manifest::MANIFEST_FILE, manifest.to_json().as_bytes())?;
+    dir.commit()?;
+    say!("wrote {}/sweep.csv and sweep.svg", out.display());
+    Ok(Outcome::Ok)
+}
+
 /// `weir plan`.
 pub fn plan(a: PlanArgs) -> Result<Outcome> {
+    if !a.sweep.is_empty() || a.run_dir.is_file() {
+        return plan_sweep(&a);
+    }
     let (plan, json) = plan_dir(&a)?;
     say!(
         "plan of {} on {} ({BOUND_NOTE})",

@@ -110,5 +110,19 @@ pub fn demo(a: DemoArgs) -> Result<Outcome> {
     let spec = JobSpec::from_toml(DEMO_JOB, Path::new("data/jobs/demo.toml"))?;
     say!("weir demo: {}", spec.name);
     execute(&spec, Path::new("."), &a.out, a.force, None, &[])?;
+    let plan = super::args::PlanArgs {
+        run_dir: a.out.clone(),
+        sweep: Vec::new(),
+        out: None,
+        force: false,
+        device: "hbm2x2".into(),
+        placement: None,
+        bench: None,
+        measured: None,
+    };
+    say!("");
+    super::plan::plan(plan)?;
+    let report = super::report::write_report(&a.out)?;
+    say!("\nreport: {}", report.display());
     Ok(Outcome::Ok)
 }

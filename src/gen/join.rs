@@ -157,7 +157,7 @@ impl JoinGen {
                 Dup::Fixed(c) => u64::from(c),
                 Dup::Geometric(m) => {
                     // Counts of keys d come from the stream of d's block, in order.
-                    if d % BLOCK_ROWS == 0 {
+                    if d.is_multiple_of(BLOCK_ROWS) {
                         stream = Stream::new(self.seed, "build", "dup", d / BLOCK_ROWS);
                     }
                     geometric(&mut stream, 1.0 / m)

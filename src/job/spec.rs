@@ -275,7 +275,9 @@ mod tests {
         let j = JobSpec::from_toml(MIN, Path::new("j.toml")).unwrap();
         assert_eq!(j.layout.word_bits, 512);
         assert_eq!(j.output.formats, vec!["hex", "npy"]);
-        let KernelConfig::Scan(s) = &j.kernel;
+        let KernelConfig::Scan(s) = &j.kernel else {
+            panic!("a scan job")
+        };
         assert_eq!(s.output, "row_ids");
         assert_eq!(j.table_specs().unwrap()[0].0, "t");
     }

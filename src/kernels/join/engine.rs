@@ -312,7 +312,7 @@ pub(crate) fn drive<T: BlockTable>(
                 }
             }
         }
-        let written = std::mem::replace(&mut out.traffic, Traffic::default());
+        let written = std::mem::take(&mut out.traffic);
         put(
             &mut ledger,
             Key::device(e, pp, io.out_channel, Direction::Write),
@@ -324,7 +324,7 @@ pub(crate) fn drive<T: BlockTable>(
         sink(&matches.to_le_bytes());
         out.touch(8, 1);
         records = 1;
-        let written = std::mem::replace(&mut out.traffic, Traffic::default());
+        let written = std::mem::take(&mut out.traffic);
         put(
             &mut ledger,
             Key::device(e, phase, io.out_channel, Direction::Write),

@@ -22,6 +22,7 @@ pub fn nested_loop_join(
     let mut pairs = 0u64;
     let mut seen = vec![false; probe.rows()];
     for block in &plan.blocks {
+        #[allow(clippy::needless_range_loop)] // `l` indexes the key column and `seen`
         for l in 0..probe.rows() {
             for s in block.start as usize..block.end as usize {
                 if c.bkey.get(s) != c.pkey.get(l) {

@@ -118,7 +118,7 @@ pub struct JoinKernel {
     params: JoinParams,
 }
 
-fn column<'a>(t: &'a TableSchema, key: &str, name: &str) -> Result<(usize, ElemType)> {
+fn column(t: &TableSchema, key: &str, name: &str) -> Result<(usize, ElemType)> {
     t.columns
         .iter()
         .position(|(n, _)| n == name)
@@ -431,7 +431,7 @@ impl Kernel for JoinKernel {
             outputs.push(Golden {
                 name: format!("table_b{b}"),
                 region: None,
-                records: if slot > 0 { img.len() as u64 / slot } else { 0 },
+                records: (img.len() as u64).checked_div(slot).unwrap_or(0),
                 record_bytes: slot,
                 elem: "slot".into(),
                 fields: Vec::new(),
