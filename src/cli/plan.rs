@@ -202,6 +202,8 @@ fn plan_sweep(a: &PlanArgs) -> Result<Outcome> {
     for (series, engines, placement) in axes {
         let mut s = spec.clone();
         s.layout.partitions = engines;
+        // The device decides how many channels there are to spread over.
+        s.layout.channels = device.channels.count;
         s.layout.placement = weir::job::spec::PlacementSpec::Name(placement);
         s.layout.partition_rows = None;
         let prep = weir::job::prepare(&s, job_dir)
