@@ -198,6 +198,9 @@ fn plan_sweep(a: &PlanArgs) -> Result<Outcome> {
     let device = Device::load(&a.device)?;
     let mut points = Vec::new();
     let axes = sweep_points(&a.sweep)?;
+    // Generated rows do not depend on the partitioning, so each table is generated once
+    // and every point slices the same rows.
+    let mut generated: std::collections::HashMap<String, weir::table::Table> = Default::default();
     let pb = super::progress(axes.len() as u64, "points");
     for (series, engines, placement) in axes {
         let mut s = spec.clone();
@@ -206,8 +209,16 @@ fn plan_sweep(a: &PlanArgs) -> Result<Outcome> {
         s.layout.channels = device.channels.count;
         s.layout.placement = weir::job::spec::PlacementSpec::Name(placement);
         s.layout.partition_rows = None;
-        let prep = weir::job::prepare(&s, job_dir)
+        let mut prep = weir::job::prepare(&s, job_dir)
             .map_err(|e| e.context(format!("sweep point {series}, {engines} engines")))?;
+        for t in &mut prep.tables {
+            if let weir::job::prepare::Source::Gen(g) = &t.source {
+                let rows = generated
+                    .entry(t.name.clone())
+                    .or_insert_with(|| g.generate(0..g.rows));
+                t.source = weir::job::prepare::Source::Loaded(rows.clone());
+            }
+        }
         let ledger = weir::job::ledger_only(&prep)?;
         points.push(weir::memsys::sweep::SweepPoint {
             series,
