@@ -116,6 +116,25 @@ pub fn calibrate(a: CalibrateArgs) -> Result<Outcome> {
 }
 
 /// `weir bench`.
+/// The files `--out PREFIX` names (`PREFIX.csv`, `.json`, `.svg`), refused when one
+/// exists and `force` is not given.
+pub fn bench_outputs(
+    prefix: Option<&std::path::Path>,
+    force: bool,
+) -> Result<Vec<std::path::PathBuf>> {
+    let outputs: Vec<std::path::PathBuf> = prefix
+        .iter()
+        .flat_map(|p| ["csv", "json", "svg"].map(|e| p.with_extension(e)))
+        .collect();
+    if let Some(p) = outputs.iter().find(|p| p.exists() && !force) {
+        return Err(Error::exists(format!(
+            "{} exists; add --force to replace it",
+            p.display()
+        )));
+    }
+    Ok(outputs)
+}
+
 pub fn bench(a: BenchArgs) -> Result<Outcome> {
     match a.kind {
         BenchKind::Scan(s) => bench_scan(s),
@@ -144,17 +163,7 @@ fn bench_scan(a: BenchScanArgs) -> Result<Outcome> {
             "--selectivity {s}: must be within 0..=1"
         )));
     }
-    let outputs: Vec<std::path::PathBuf> = a
-        .out
-        .iter()
-        .flat_map(|p| ["csv", "json", "svg"].map(|e| p.with_extension(e)))
-        .collect();
-    if let Some(p) = outputs.iter().find(|p| p.exists() && !a.force) {
-        return Err(Error::exists(format!(
-            "{} exists; add --force to replace it",
-            p.display()
-        )));
-    }
+    bench_outputs(a.out.as_deref(), a.force)?;
     // A saved calibration is kept in the JSON for context only: the fraction comes from
     // the read reference interleaved with the scan's own runs.
     let cal = match &a.calibration {
@@ -335,17 +344,7 @@ fn bench_sgd(a: BenchSgdArgs) -> Result<Outcome> {
             "--threads, --runs, --rows, --dims and --batch must be at least 1",
         ));
     }
-    let outputs: Vec<std::path::PathBuf> = a
-        .out
-        .iter()
-        .flat_map(|p| ["csv", "json", "svg"].map(|e| p.with_extension(e)))
-        .collect();
-    if let Some(p) = outputs.iter().find(|p| p.exists() && !a.force) {
-        return Err(Error::exists(format!(
-            "{} exists; add --force to replace it",
-            p.display()
-        )));
-    }
+    bench_outputs(a.out.as_deref(), a.force)?;
     let params = sgd_bench::SgdBenchParams {
         dims: a.dims.clone(),
         batches: a.batch.clone(),

@@ -32,17 +32,7 @@ pub fn bench_join(a: BenchJoinArgs) -> Result<Outcome> {
             "--threads, --runs and the row counts must be at least 1",
         ));
     }
-    let outputs: Vec<std::path::PathBuf> = a
-        .out
-        .iter()
-        .flat_map(|p| ["csv", "json", "svg"].map(|e| p.with_extension(e)))
-        .collect();
-    if let Some(p) = outputs.iter().find(|p| p.exists() && !a.force) {
-        return Err(Error::exists(format!(
-            "{} exists; add --force to replace it",
-            p.display()
-        )));
-    }
+    super::bench::bench_outputs(a.out.as_deref(), a.force)?;
     let tables = jb::bench_tables(build_rows, probe_rows);
     if let Some(prefix) = &a.save_npy {
         let stem = prefix
