@@ -416,3 +416,65 @@ fn bad_input_is_one_line_and_exit_2() {
         out.stderr
     );
 }
+
+/// `weir plan JOB.toml --sweep`: every point of engines × placement × selectivity runs
+/// ledger-only and lands in sweep.csv; spreading four engines over four channels predicts
+/// more bandwidth than packing them on one, and a denser scan writes more, so it never
+/// consumes input faster (both follow from the model's definition: time is the busiest
+/// resource's bytes over its bandwidth).
+#[test]
+fn sweeps_of_a_job_cover_every_point() {
+    let t = util::TempDir::new("sweep-job");
+    let out = t.join("sweep");
+    let o = util::weir(&[
+        "plan",
+        util::repo("data/jobs/scan-testbench.toml")
+            .to_str()
+            .unwrap(),
+        "--device",
+        "hbm2x2",
+        "--sweep",
+        "engines=1..4",
+        "--sweep",
+        "placement=spread,packed",
+        "--sweep",
+        "selectivity=0.05,0.5",
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let csv = std::fs::read_to_string(out.join("sweep.csv")).unwrap();
+    let rows: Vec<Vec<String>> = csv
+        .lines()
+        .skip(1)
+        .map(|l| l.split(',').map(str::to_string).collect())
+        .collect();
+    assert_eq!(rows.len(), 2 * 2 * 4, "{csv}");
+    let at = |series: &str, engines: &str, col: usize| -> f64 {
+        rows.iter()
+            .find(|r| r[0] == series && r[1] == engines)
+            .unwrap_or_else(|| panic!("{series} {engines} missing:\n{csv}"))[col]
+            .parse()
+            .unwrap()
+    };
+    // Column 4 is aggregate GB/s, column 5 consumed GB/s.
+    assert!(at("spread selectivity=0.05", "4", 4) > at("packed selectivity=0.05", "4", 4));
+    assert!(at("spread selectivity=0.5", "4", 5) <= at("spread selectivity=0.05", "4", 5));
+    assert!(out.join("sweep.svg").is_file());
+    // A second sweep into the same directory needs --force.
+    let again = util::weir(&[
+        "plan",
+        util::repo("data/jobs/scan-testbench.toml")
+            .to_str()
+            .unwrap(),
+        "--device",
+        "hbm2x2",
+        "--sweep",
+        "engines=1..2",
+        "--sweep",
+        "placement=spread",
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    assert_eq!(again.code, 2, "{}", again.stdout);
+}

@@ -150,14 +150,24 @@ pub fn plan_dir(a: &PlanArgs) -> Result<(Plan, serde_json::Value)> {
     Ok((plan, json))
 }
 
-/// The points of `--sweep` axes: (series label, engines, placement name).
-fn sweep_points(axes: &[String]) -> Result<Vec<(String, u32, String)>> {
+/// One point of a sweep: its series label, engines, placement and the selectivity its
+/// generated `select` columns ask for (`None`: as the job says).
+struct Point {
+    series: String,
+    engines: u32,
+    placement: String,
+    selectivity: Option<f64>,
+}
+
+/// The points of `--sweep` axes: every placement × selectivity is a series over engines.
+fn sweep_points(axes: &[String]) -> Result<Vec<Point>> {
     let mut engines: Vec<u32> = Vec::new();
     let mut placements: Vec<String> = Vec::new();
+    let mut selectivities: Vec<f64> = Vec::new();
     for axis in axes {
         let bad = || {
             Error::input(format!(
-                "--sweep `{axis}`: expected engines=A..B or placement=spread,packed"
+                "--sweep `{axis}`: expected engines=A..B, placement=spread,packed or selectivity=0.01,0.5"
             ))
         };
         let (k, v) = axis.split_once('=').ok_or_else(bad)?;
@@ -172,6 +182,15 @@ fn sweep_points(axes: &[String]) -> Result<Vec<(String, u32, String)>> {
                 engines.extend(a..=b);
             }
             "placement" => placements.extend(v.split(',').map(str::to_string)),
+            "selectivity" => {
+                for x in v.split(',') {
+                    let s: f64 = x.trim().parse().map_err(|_| bad())?;
+                    if !(0.0..=1.0).contains(&s) {
+                        return Err(bad());
+                    }
+                    selectivities.push(s);
+                }
+            }
             _ => return Err(bad()),
         }
     }
@@ -180,10 +199,50 @@ fn sweep_points(axes: &[String]) -> Result<Vec<(String, u32, String)>> {
             "--sweep needs both an engines=A..B and a placement=… axis",
         ));
     }
-    Ok(placements
-        .iter()
-        .flat_map(|p| engines.iter().map(move |&e| (p.clone(), e, p.clone())))
-        .collect())
+    let sels: Vec<Option<f64>> = if selectivities.is_empty() {
+        vec![None]
+    } else {
+        selectivities.into_iter().map(Some).collect()
+    };
+    let mut points = Vec::new();
+    for p in &placements {
+        for &sel in &sels {
+            let series = match sel {
+                Some(s) => format!("{p} selectivity={s}"),
+                None => p.clone(),
+            };
+            for &e in &engines {
+                points.push(Point {
+                    series: series.clone(),
+                    engines: e,
+                    placement: p.clone(),
+                    selectivity: sel,
+                });
+            }
+        }
+    }
+    Ok(points)
+}
+
+/// Sets the requested selectivity of every generated `select` column of `spec`; an error
+/// when there is none (the axis would change nothing).
+fn set_selectivity(spec: &mut weir::job::JobSpec, s: f64) -> Result<()> {
+    let mut any = false;
+    for t in spec.table_specs_mut() {
+        for c in &mut t.columns {
+            if c.dist.as_deref() == Some("select") {
+                c.selectivity = Some(s);
+                any = true;
+            }
+        }
+    }
+    if any {
+        Ok(())
+    } else {
+        Err(Error::input(
+            "--sweep selectivity: the job has no generated `select` column to set",
+        ))
+    }
 }
 
 /// `weir plan JOB.toml --sweep …`: the job run ledger-only at every point, each ledger
@@ -202,8 +261,17 @@ fn plan_sweep(a: &PlanArgs) -> Result<Outcome> {
     // and every point slices the same rows.
     let mut generated: std::collections::HashMap<String, weir::table::Table> = Default::default();
     let pb = super::progress(axes.len() as u64, "points");
-    for (series, engines, placement) in axes {
+    for Point {
+        series,
+        engines,
+        placement,
+        selectivity,
+    } in axes
+    {
         let mut s = spec.clone();
+        if let Some(sel) = selectivity {
+            set_selectivity(&mut s, sel)?;
+        }
         s.layout.partitions = engines;
         // The device decides how many channels there are to spread over.
         s.layout.channels = device.channels.count;
@@ -214,7 +282,7 @@ fn plan_sweep(a: &PlanArgs) -> Result<Outcome> {
         for t in &mut prep.tables {
             if let weir::job::prepare::Source::Gen(g) = &t.source {
                 let rows = generated
-                    .entry(t.name.clone())
+                    .entry(format!("{} {selectivity:?}", t.name))
                     .or_insert_with(|| g.generate(0..g.rows));
                 t.source = weir::job::prepare::Source::Loaded(rows.clone());
             }
