@@ -503,3 +503,25 @@ fn calibrate_and_bench_write_their_results() {
     let o = calibrate();
     assert_eq!(o.code, 2);
 }
+
+#[test]
+fn negative_numbers_are_values_of_gen_flags() {
+    let t = TempDir::new("gen-negative");
+    let out = t.join("v.npy");
+    let o = weir(&[
+        "gen",
+        "scan",
+        "--out",
+        out.to_str().unwrap(),
+        "--type",
+        "i32",
+        "--lo",
+        "-5",
+        "--hi",
+        "5",
+        "--rows",
+        "1000",
+    ]);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    assert!(o.stdout.contains("-5 <= v < 5"), "{}", o.stdout);
+}

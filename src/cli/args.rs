@@ -149,11 +149,11 @@ pub struct GenScanArgs {
     /// Requested fraction of rows with lo <= v < hi.
     #[arg(long, default_value_t = 0.01)]
     pub selectivity: f64,
-    /// Start of the match range (inclusive).
-    #[arg(long, default_value_t = 1000.0)]
+    /// Start of the match range (inclusive); negative values are values (`--lo -5`).
+    #[arg(long, default_value_t = 1000.0, allow_negative_numbers = true)]
     pub lo: f64,
     /// End of the match range (exclusive).
-    #[arg(long, default_value_t = 2000.0)]
+    #[arg(long, default_value_t = 2000.0, allow_negative_numbers = true)]
     pub hi: f64,
     /// Value skew: uniform or zipf.
     #[arg(long, default_value = "uniform")]
@@ -255,7 +255,7 @@ pub struct BenchScanArgs {
     /// Thread counts to measure, comma-separated (default: 1 and all cores).
     #[arg(long, value_delimiter = ',')]
     pub threads: Option<Vec<usize>>,
-    /// Rows of the u32 column (default 2^28 = 1 GiB).
+    /// Rows of the u32 column (2^28 = 1 GiB).
     #[arg(long, default_value_t = 1 << 28)]
     pub rows: u64,
     /// Selectivities to measure, comma-separated.
@@ -264,10 +264,11 @@ pub struct BenchScanArgs {
     /// Timed runs per point, after one warm-up.
     #[arg(long, default_value_t = 7)]
     pub runs: usize,
-    /// A calibration saved by `weir calibrate --out` (default: a short calibration now).
+    /// A calibration saved by `weir calibrate --out`, kept in the JSON for context (the
+    /// fraction of read comes from the read pass interleaved with the scan's runs).
     #[arg(long)]
     pub calibration: Option<PathBuf>,
-    /// Write results to PREFIX.csv and PREFIX.json.
+    /// Write results to PREFIX.csv, PREFIX.json and the plot PREFIX.svg.
     #[arg(long, value_name = "PREFIX")]
     pub out: Option<PathBuf>,
     /// Also save the generated column as .npy (for benches/compare/scan.py).
