@@ -135,6 +135,31 @@ pub fn bench_outputs(
     Ok(outputs)
 }
 
+/// Writes a bench's results as `PREFIX.csv`, `PREFIX.json` and the plot `PREFIX.svg`.
+pub fn save_bench(
+    prefix: &std::path::Path,
+    force: bool,
+    csv: &str,
+    json: &serde_json::Value,
+    svg: &str,
+) -> Result<()> {
+    let text = serde_json::to_string_pretty(json).expect("json") + "\n";
+    for (ext, bytes) in [
+        ("csv", csv.as_bytes()),
+        ("json", text.as_bytes()),
+        ("svg", svg.as_bytes()),
+    ] {
+        write_file_atomic(&prefix.with_extension(ext), bytes, force)?;
+    }
+    say!(
+        "saved {}, {} and {}",
+        prefix.with_extension("csv").display(),
+        prefix.with_extension("json").display(),
+        prefix.with_extension("svg").display()
+    );
+    Ok(())
+}
+
 pub fn bench(a: BenchArgs) -> Result<Outcome> {
     match a.kind {
         BenchKind::Scan(s) => bench_scan(s),
@@ -271,22 +296,9 @@ fn bench_scan(a: BenchScanArgs) -> Result<Outcome> {
         );
     }
     if let Some(prefix) = &a.out {
-        write_file_atomic(
-            &prefix.with_extension("csv"),
-            scan_bench::to_csv(&points).as_bytes(),
-            a.force,
-        )?;
         let json = serde_json::json!({ "bench": "scan", "rows": a.rows, "calibration": cal, "points": points });
-        let text = serde_json::to_string_pretty(&json).expect("json") + "\n";
-        write_file_atomic(&prefix.with_extension("json"), text.as_bytes(), a.force)?;
         let svg = scan_bench::chart(&points, a.rows).to_svg();
-        write_file_atomic(&prefix.with_extension("svg"), svg.as_bytes(), a.force)?;
-        say!(
-            "saved {}, {} and {}",
-            prefix.with_extension("csv").display(),
-            prefix.with_extension("json").display(),
-            prefix.with_extension("svg").display()
-        );
+        save_bench(prefix, a.force, &scan_bench::to_csv(&points), &json, &svg)?;
     }
     Ok(Outcome::Ok)
 }
@@ -409,25 +421,9 @@ fn bench_sgd(a: BenchSgdArgs) -> Result<Outcome> {
     }
     say!("{}", t.render().trim_end());
     if let Some(prefix) = &a.out {
-        write_file_atomic(
-            &prefix.with_extension("csv"),
-            sgd_bench::to_csv(&points).as_bytes(),
-            a.force,
-        )?;
         let json = serde_json::json!({ "bench": "sgd", "points": points });
-        let text = serde_json::to_string_pretty(&json).expect("json") + "\n";
-        write_file_atomic(&prefix.with_extension("json"), text.as_bytes(), a.force)?;
-        write_file_atomic(
-            &prefix.with_extension("svg"),
-            sgd_bench::chart(&points).to_svg().as_bytes(),
-            a.force,
-        )?;
-        say!(
-            "saved {}, {} and {}",
-            prefix.with_extension("csv").display(),
-            prefix.with_extension("json").display(),
-            prefix.with_extension("svg").display()
-        );
+        let svg = sgd_bench::chart(&points).to_svg();
+        save_bench(prefix, a.force, &sgd_bench::to_csv(&points), &json, &svg)?;
     }
     Ok(Outcome::Ok)
 }

@@ -95,22 +95,9 @@ pub fn bench_join(a: BenchJoinArgs) -> Result<Outcome> {
     }
     say!("{}", t.render().trim_end());
     if let Some(prefix) = &a.out {
-        write_file_atomic(
-            &prefix.with_extension("csv"),
-            jb::to_csv(&points).as_bytes(),
-            a.force,
-        )?;
         let json = serde_json::json!({ "bench": "join", "build_rows": build_rows, "probe_rows": probe_rows, "points": points });
-        let text = serde_json::to_string_pretty(&json).expect("json") + "\n";
-        write_file_atomic(&prefix.with_extension("json"), text.as_bytes(), a.force)?;
         let svg = jb::chart(&points, build_rows, probe_rows).to_svg();
-        write_file_atomic(&prefix.with_extension("svg"), svg.as_bytes(), a.force)?;
-        say!(
-            "saved {}, {} and {}",
-            prefix.with_extension("csv").display(),
-            prefix.with_extension("json").display(),
-            prefix.with_extension("svg").display()
-        );
+        super::bench::save_bench(prefix, a.force, &jb::to_csv(&points), &json, &svg)?;
     }
     Ok(Outcome::Ok)
 }
