@@ -180,8 +180,37 @@ pub fn scan_partition(
     }
 }
 
-/// Visits the mask words of rows `r` and calls `put(bucket output, row in chunk)` for every
-/// matching row; returns the match count.
+/// Visits the mask words of rows `r` and calls `put(bucket output, word index in chunk,
+/// mask word)` for every word; returns the match count.
+#[allow(clippy::too_many_arguments)]
+#[inline(always)]
+fn visit_words(
+    isa: Isa,
+    table: &Table,
+    params: &ScanParams,
+    r: std::ops::Range<usize>,
+    masks: &mut Vec<u64>,
+    scratch: &mut mask::Scratch,
+    buckets: &mut [Vec<u8>; mask::BUCKETS],
+    mut put: impl FnMut(&mut Vec<u8>, usize, u64),
+) -> u64 {
+    let mut count = 0u64;
+    mask::visit(
+        isa,
+        &params.predicate,
+        table,
+        r,
+        masks,
+        scratch,
+        &mut |k, i, m| {
+            count += u64::from(m.count_ones());
+            put(&mut buckets[k], i, m);
+        },
+    );
+    count
+}
+
+/// Like [`visit_words`], calling `put(bucket output, row in chunk)` for every matching row.
 #[allow(clippy::too_many_arguments)]
 #[inline(always)]
 fn visit_matches(
@@ -194,20 +223,10 @@ fn visit_matches(
     buckets: &mut [Vec<u8>; mask::BUCKETS],
     mut put: impl FnMut(&mut Vec<u8>, usize),
 ) -> u64 {
-    let mut count = 0u64;
-    mask::visit(
-        isa,
-        &params.predicate,
-        table,
-        r,
-        masks,
-        scratch,
-        &mut |k, i, m| {
-            count += u64::from(m.count_ones());
-            for_each_match(&[m], |j| put(&mut buckets[k], 64 * i + j as usize));
-        },
-    );
-    count
+    let put_word = |out: &mut Vec<u8>, i: usize, m: u64| {
+        for_each_match(&[m], |j| put(out, 64 * i + j as usize))
+    };
+    visit_words(isa, table, params, r, masks, scratch, buckets, put_word)
 }
 
 /// Scans rows `r` (one chunk) into its bucket outputs; returns the match count. Matches
@@ -252,20 +271,10 @@ fn scan_chunk(
         ScanOutput::RowIds => {
             // The job chooses u32 ids only when every row id fits (and a chunk is whole
             // mask words, so the last word's ids fit too).
-            let mut count = 0u64;
-            mask::visit(
-                isa,
-                &params.predicate,
-                table,
-                r,
-                masks,
-                scratch,
-                &mut |k, i, m| {
-                    count += u64::from(m.count_ones());
-                    compact::push_ids_u32(&mut buckets[k], (base + 64 * i as u64) as u32, m);
-                },
-            );
-            count
+            let put = |out: &mut Vec<u8>, i: usize, m: u64| {
+                compact::push_ids_u32(out, (base + 64 * i as u64) as u32, m)
+            };
+            visit_words(isa, table, params, r, masks, scratch, buckets, put)
         }
         ScanOutput::Project(cols) => {
             let start = r.start;
