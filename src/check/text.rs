@@ -2,7 +2,7 @@
 //! each failing or noted output (file read, diagnosis, first differences, notes).
 
 use super::{CheckReport, Mismatch, OutputCheck, Verdict};
-use crate::report::TextTable;
+use crate::tables::TextTable;
 
 fn verdict(o: &OutputCheck) -> String {
     match o.verdict {

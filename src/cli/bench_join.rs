@@ -2,8 +2,8 @@
 //! passes over the same bytes, and the mirror join's probe rate.
 
 use weir::bench::join::{self as jb, JoinBenchParams};
-use weir::report::TextTable;
 use weir::table::write_npy_column;
+use weir::tables::TextTable;
 use weir::{Error, Result};
 
 use super::args::BenchJoinArgs;

@@ -15,7 +15,7 @@ use super::gen::write_file_atomic;
 use super::Outcome;
 
 fn read(path: &Path) -> Result<String> {
-    std::fs::read_to_string(path).map_err(|e| Error::io(path, e))
+    std::fs::read_to_string(path).map_err(|e| Error::read(path, e))
 }
 
 /// The host's time for the run: from a bench result (best GB/s over its points, applied

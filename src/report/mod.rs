@@ -18,9 +18,6 @@ mod page;
 
 pub use page::{render, ReportInput};
 
-/// Kept for `src/cli/run.rs`, which still reaches the terminal tables by their old path.
-pub use crate::tables::{human_bytes, ledger_report, TextTable};
-
 use std::path::Path;
 
 use crate::ledger::{Ledger, Region};
