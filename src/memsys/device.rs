@@ -261,7 +261,7 @@ impl Device {
         if presets::text(arg).is_some() || !path.exists() {
             return Device::preset(arg);
         }
-        let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+        let text = std::fs::read_to_string(path).map_err(|e| Error::read(path, e))?;
         Device::from_toml(&text, arg)
     }
 

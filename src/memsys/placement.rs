@@ -15,7 +15,7 @@ pub fn parse_placement(arg: &str) -> Result<Placement> {
         return Placement::parse(arg);
     }
     let path = std::path::Path::new(arg);
-    let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, e))?;
+    let text = std::fs::read_to_string(path).map_err(|e| Error::read(path, e))?;
     let list: Vec<&str> = text
         .lines()
         .map(|l| l.split('#').next().unwrap_or(""))

@@ -59,7 +59,7 @@ pub fn ledger_chart(ledger: &Ledger) -> BarChart {
 pub fn gather(dir: &Path) -> Result<ReportInput> {
     let read = |name: &str| {
         let p = dir.join(name);
-        std::fs::read_to_string(&p).map_err(|e| Error::io(&p, e))
+        std::fs::read_to_string(&p).map_err(|e| Error::read(&p, e))
     };
     let lp = dir.join("ledger.json");
     let (ledger, word_bits) = read_ledger_json(&read("ledger.json")?, &lp.display().to_string())?;
@@ -78,7 +78,7 @@ pub fn gather(dir: &Path) -> Result<ReportInput> {
         .collect();
     paths.sort();
     for p in paths {
-        let text = std::fs::read_to_string(&p).map_err(|e| Error::io(&p, e))?;
+        let text = std::fs::read_to_string(&p).map_err(|e| Error::read(&p, e))?;
         let name = p
             .file_name()
             .unwrap_or_default()
