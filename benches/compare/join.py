@@ -1,85 +1,95 @@
 #!/usr/bin/env python3
-"""Peers of weir's join benchmark: the same inner join on the same .npy data.
+"""weir's fast join beside its peers, interleaved in one run, on the same data.
 
-Loads PREFIX-{build,probe}-{key,payload}.npy (written by
-`weir bench join --save-npy PREFIX`), joins L to S on key with pandas (merge),
-polars (join) and DuckDB (SQL), materialising (probe payload, build payload)
-pairs, checks every peer gives the same pair count, and prints median times and
-ratios to the fastest peer and to weir's median (from `weir bench join --out`).
-A peer that is not installed is skipped with a note.
+Runs `weir bench join --save-npy` once to write the benchmark's tables as .npy
+files (S: unique u64 keys + u64 payload; L: u64 key + u64 payload, every row
+matching), loads them, then in each round runs every peer once and weir once:
+pandas (merge), polars (join) and DuckDB (SQL), each materialising the
+(probe payload, build payload) pairs, and `weir bench join --runs 1`. All must
+give the same pair count. Prints per-engine medians with min..max and, per
+peer, the median of the per-round ratios peer time / weir time (above 1: weir
+is faster), with their spread. A peer that is not installed is skipped with a
+note.
 
-Usage: join.py --npy PREFIX [--runs 5] [--weir-json PATH] [--threads N]
+Usage: join.py [--weir BIN] [--shape a|b] [--rounds 5] [--threads N] [--json OUT]
 """
 
 import argparse
 import json
+import os
 import statistics
+import subprocess
 import sys
+import tempfile
 import time
 
 import numpy as np
 
 
 def parse_args(argv):
-    p = argparse.ArgumentParser(description="Time pandas, polars and DuckDB on weir's join data.")
-    p.add_argument("--npy", required=True, metavar="PREFIX", help="prefix given to weir bench join --save-npy")
-    p.add_argument("--runs", type=int, default=5, help="timed runs after one warm-up (default 5)")
-    p.add_argument("--weir-json", metavar="PATH", help="PREFIX.json of weir bench join --out PREFIX")
-    p.add_argument("--threads", type=int, default=None, help="threads for polars and DuckDB (default: all)")
+    p = argparse.ArgumentParser(description="Interleave weir's join with pandas, polars and DuckDB.")
+    p.add_argument("--weir", default="target/release/weir", help="weir binary (default target/release/weir)")
+    p.add_argument("--shape", default="a", choices=["a", "b"], help="benchmark shape (default a)")
+    p.add_argument("--rounds", type=int, default=5, help="interleaved rounds after one warm-up (default 5)")
+    p.add_argument("--threads", type=int, default=os.cpu_count(), help="threads for weir, polars and DuckDB")
+    p.add_argument("--json", metavar="OUT", help="also write the results as JSON to OUT")
     args = p.parse_args(argv)
-    if args.runs < 1:
-        p.error(f"--runs must be at least 1, got {args.runs}")
+    if args.rounds < 1 or args.threads < 1:
+        p.error("--rounds and --threads must be at least 1")
     return args
 
 
-def load(prefix):
+def weir_round(args, tmp, save=False):
+    """One `weir bench join` run; returns (seconds of the fast join, pairs)."""
+    prefix = os.path.join(tmp, "weir")
+    cmd = [args.weir, "bench", "join", "--shape", args.shape, "--runs", "1",
+           "--threads", str(args.threads), "--out", prefix, "--force"]
+    if save:
+        cmd += ["--save-npy", os.path.join(tmp, "data")]
+    r = subprocess.run(cmd, capture_output=True, text=True)
+    if r.returncode != 0:
+        raise SystemExit(f"{' '.join(cmd)}: exit {r.returncode}: {r.stderr.strip()}")
+    with open(prefix + ".json") as fh:
+        p = json.load(fh)["points"][-1]
+    return p["fast"]["median_s"], p["pairs"]
+
+
+def load(tmp):
     cols = {}
     for side in ("build", "probe"):
         for c in ("key", "payload"):
-            path = f"{prefix}-{side}-{c}.npy"
-            try:
-                cols[f"{side}_{c}"] = np.load(path, allow_pickle=False)
-            except (OSError, ValueError) as e:
-                raise SystemExit(f"{path}: {e}")
+            cols[f"{side}_{c}"] = np.load(os.path.join(tmp, f"data-{side}-{c}.npy"), allow_pickle=False)
     return cols
 
 
-def timed(f, runs):
-    f()
-    times, n = [], None
-    for _ in range(runs):
-        t = time.perf_counter()
-        n = f()
-        times.append(time.perf_counter() - t)
-    return statistics.median(times), min(times), max(times), n
-
-
 def peers(cols, threads):
+    # Each lambda binds its own frames (default arguments): the names are reused.
     out = []
     try:
         import pandas as pd
         s = pd.DataFrame({"key": cols["build_key"], "sp": cols["build_payload"]})
         l = pd.DataFrame({"key": cols["probe_key"], "lp": cols["probe_payload"]})
-        out.append(("pandas merge", lambda: len(l.merge(s, on="key", how="inner")[["lp", "sp"]])))
+        out.append(("pandas merge", lambda l=l, s=s: len(l.merge(s, on="key", how="inner")[["lp", "sp"]])))
     except ImportError:
         print("skipped: pandas not installed")
     try:
         import polars as pl
         s = pl.DataFrame({"key": cols["build_key"], "sp": cols["build_payload"]})
         l = pl.DataFrame({"key": cols["probe_key"], "lp": cols["probe_payload"]})
-        out.append(("polars join", lambda: l.join(s, on="key", how="inner").select(["lp", "sp"]).height))
+        out.append(("polars join", lambda l=l, s=s: l.join(s, on="key", how="inner").select(["lp", "sp"]).height))
     except ImportError:
         print("skipped: polars not installed")
     try:
         import duckdb
         con = duckdb.connect()
-        if threads:
-            con.execute(f"set threads = {threads}")
-        s = {"key": cols["build_key"], "sp": cols["build_payload"]}
-        l = {"key": cols["probe_key"], "lp": cols["probe_payload"]}
-        con.register("s", __import__("pandas").DataFrame(s))
-        con.register("l", __import__("pandas").DataFrame(l))
-        # The result is fetched as numpy arrays, so the pairs are materialised.
+        con.execute(f"set threads = {threads}")
+        import pandas as pd
+        con.register("sv", pd.DataFrame({"key": cols["build_key"], "sp": cols["build_payload"]}))
+        con.register("lv", pd.DataFrame({"key": cols["probe_key"], "lp": cols["probe_payload"]}))
+        # Copied into DuckDB's own tables, so the timed query does not scan pandas frames.
+        con.execute("create table s as select * from sv")
+        con.execute("create table l as select * from lv")
+        # Fetched as numpy arrays, so the pairs are materialised in the client.
         q = "select l.lp, s.sp from l join s on l.key = s.key"
         out.append(("duckdb sql", lambda: len(con.execute(q).fetchnumpy()["lp"])))
     except ImportError:
@@ -87,29 +97,54 @@ def peers(cols, threads):
     return out
 
 
+def spread(xs):
+    return statistics.median(xs), min(xs), max(xs)
+
+
 def main(argv):
     args = parse_args(argv)
-    cols = load(args.npy)
-    results = []
-    for name, f in peers(cols, args.threads):
-        med, lo, hi, n = timed(f, args.runs)
-        results.append((name, med, lo, hi, n))
-        print(f"{name:14s} median {med * 1e3:9.1f} ms (min {lo * 1e3:.1f}, max {hi * 1e3:.1f}), {n} pairs")
-    counts = {n for *_, n in results}
-    if len(counts) > 1:
-        raise SystemExit(f"peers disagree on the pair count: {sorted(counts)}")
-    if not results:
-        raise SystemExit("no peer installed (pandas, polars, duckdb)")
-    best = min(results, key=lambda r: r[1])
-    print(f"fastest peer: {best[0]} ({best[1] * 1e3:.1f} ms)")
-    if args.weir_json:
-        with open(args.weir_json) as fh:
-            pts = json.load(fh)["points"]
-        for p in pts:
-            if p["pairs"] != best[4]:
-                raise SystemExit(f"weir has {p['pairs']} pairs, the peers {best[4]}")
-            print(f"weir fast join, {p['threads']} threads: median {p['fast']['median_s'] * 1e3:.1f} ms, "
-                  f"{best[1] / p['fast']['median_s']:.2f}x the fastest peer")
+    if "POLARS_MAX_THREADS" not in os.environ:
+        os.environ["POLARS_MAX_THREADS"] = str(args.threads)
+    with tempfile.TemporaryDirectory() as tmp:
+        weir_round(args, tmp, save=True)
+        cols = load(tmp)
+        engines = peers(cols, args.threads)
+        if not engines:
+            raise SystemExit("no peer installed (pandas, polars, duckdb)")
+        for _, f in engines:
+            f()  # warm-up
+        times = {name: [] for name, _ in engines}
+        times["weir fast join"] = []
+        counts = {}
+        for _ in range(args.rounds):
+            for name, f in engines:
+                t = time.perf_counter()
+                counts.setdefault(name, set()).add(f())
+                times[name].append(time.perf_counter() - t)
+            w, pairs = weir_round(args, tmp)
+            counts.setdefault("weir fast join", set()).add(pairs)
+            times["weir fast join"].append(w)
+    all_counts = set().union(*counts.values())
+    if len(all_counts) != 1:
+        raise SystemExit(f"engines disagree on the pair count: { {k: sorted(v) for k, v in counts.items()} }")
+    pairs = all_counts.pop()
+    rows = len(cols["probe_key"])
+    print(f"join shape {args.shape}: |S| = {len(cols['build_key'])}, |L| = {rows}, {pairs} pairs, "
+          f"{args.threads} threads, {args.rounds} interleaved rounds")
+    print(f"{'engine':16s} {'median ms':>10s} {'min..max ms':>17s} {'M probes/s':>11s} {'peer/weir (min..max)':>22s}")
+    result = {"shape": args.shape, "threads": args.threads, "pairs": pairs, "engines": {}}
+    wt = times["weir fast join"]
+    for name, ts in times.items():
+        med, lo, hi = spread(ts)
+        ratios = [t / w for t, w in zip(ts, wt)]
+        rm, rlo, rhi = spread(ratios)
+        rel = "" if name == "weir fast join" else f"{rm:.2f}x ({rlo:.2f}..{rhi:.2f})"
+        print(f"{name:16s} {med * 1e3:10.1f} {lo * 1e3:8.1f}..{hi * 1e3:<8.1f} {rows / med / 1e6:11.1f} {rel:>22s}")
+        result["engines"][name] = {"median_s": med, "min_s": lo, "max_s": hi, "ratio_to_weir": rm,
+                                   "ratio_min": rlo, "ratio_max": rhi}
+    if args.json:
+        with open(args.json, "w") as fh:
+            json.dump(result, fh, indent=2)
 
 
 if __name__ == "__main__":

@@ -122,7 +122,7 @@ impl<'a> Cols<'a> {
         Ok(cols)
     }
 
-    pub(crate) fn writer(&self, p: &JoinParams) -> RecordWriter {
+    pub(crate) fn writer(&self, p: &JoinParams) -> Result<RecordWriter, JoinError> {
         RecordWriter::new(&p.variant, self.pkey.ty(), self.ppay.ty(), self.bpay.ty())
     }
 }
@@ -195,7 +195,8 @@ pub(crate) fn check_io(io: &JoinIo) -> Result<(), JoinError> {
 }
 
 /// Runs every block: `make(b, keys, payloads, onchip_read, onchip_write)` builds block
-/// `b`'s table, `built(b, &table)` sees it before the probe.
+/// `b`'s table, `built(b, &table)` sees it before the probe. `sink` receives each run of
+/// records in order; it may take the vector, leaving another in its place.
 #[allow(clippy::too_many_arguments)]
 pub(crate) fn drive<T: BlockTable>(
     cols: &Cols<'_>,
@@ -205,10 +206,10 @@ pub(crate) fn drive<T: BlockTable>(
     plan: &BlockPlan,
     mut make: impl FnMut(u32, &[u64], &[u64], &mut Traffic, &mut Traffic) -> Result<T, JoinError>,
     mut built: impl FnMut(u32, &T),
-    sink: &mut dyn FnMut(&[u8]),
+    sink: &mut dyn FnMut(&mut Vec<u8>),
 ) -> Result<Driven, JoinError> {
     check_io(io)?;
-    let writer = cols.writer(p);
+    let writer = cols.writer(p)?;
     let e = io.engine;
     let wb = io.word_bytes;
     let reads_pay = p.reads_probe_payload();
@@ -282,8 +283,8 @@ pub(crate) fn drive<T: BlockTable>(
                 let c = first + i;
                 let rows = chunk_rows(c, l_rows);
                 loop {
-                    sink(&o.buf);
                     out.touch(o.buf.len() as u64, o.records);
+                    sink(&mut o.buf);
                     records += o.records;
                     matches += o.matches;
                     put(
@@ -321,7 +322,7 @@ pub(crate) fn drive<T: BlockTable>(
     }
     if matches!(p.variant, Variant::Count) {
         let phase = Phase::nth("probe", plan.blocks.len().saturating_sub(1) as u32);
-        sink(&matches.to_le_bytes());
+        sink(&mut matches.to_le_bytes().to_vec());
         out.touch(8, 1);
         records = 1;
         let written = std::mem::take(&mut out.traffic);
@@ -402,6 +403,9 @@ fn probe_chunk<T: BlockTable>(
     o: &mut ChunkOut,
 ) {
     o.buf.clear();
+    // Room for one record per probe row up front (the sink may have taken the buffer).
+    let expect = (chunk.end - from) * writer.record_bytes() as usize;
+    o.buf.reserve(expect.min(OUT_LIMIT));
     let (kb, pb) = (cols.pkey.bytes(), cols.ppay.bytes());
     let n = if from == chunk.start {
         chunk.len() as u64

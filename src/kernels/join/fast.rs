@@ -1,23 +1,36 @@
-//! The fast CPU table: open addressing over `(key, payload)` pairs with multiplicative
-//! hashing and linear probing at slot granularity, probed in order with software
-//! prefetch a fixed distance ahead.
+//! The fast CPU table: open addressing over cache-line buckets of four `(key, payload)`
+//! slots, multiplicative hashing, linear probing from bucket to bucket, and probes
+//! prefetched a fixed distance ahead.
 //!
 //! ```text
-//!   slots: [key | payload] × 2^m   (2^m ≥ 2 × rows, so probes stay short)
+//!   bucket (64 bytes, aligned):  [key0 key1 key2 key3 | pay0 pay1 pay2 pay3]  × 2^m
+//!   2^m × 4 ≥ 2 × rows (load factor ≤ 0.5), so a probe nearly always reads one line
 //!   empty slot: key == `empty`, a value chosen absent from the block's keys
 //! ```
 //!
-//! Tuples of one key sit on one probe path in build order (inserted in build order, no
-//! deletions), so a probe reports them in build order: the same order as the mirror table.
+//! A bucket's used slots are a prefix, and a full bucket sends inserts to the next one.
+//! Tuples of one key share a home bucket and so a probe path; each is inserted at the
+//! first free slot on it (no deletions), so a probe meets them in build order: the same
+//! order as the mirror table.
 
 use super::hash::FIB64;
 
-/// How many rows ahead a probe prefetches its slot.
+/// How many rows ahead a probe or an insert prefetches its bucket.
 const PREFETCH_AHEAD: usize = 16;
+
+/// Slots per bucket: four `u64` keys and their payloads fill one 64-byte line.
+const SLOTS: usize = 4;
+
+#[derive(Clone, Copy)]
+#[repr(C, align(64))]
+struct Bucket {
+    keys: [u64; SLOTS],
+    pays: [u64; SLOTS],
+}
 
 /// One block's fast table.
 pub struct FastTable {
-    slots: Vec<[u64; 2]>,
+    buckets: Vec<Bucket>,
     mask: usize,
     shift: u32,
     empty: u64,
@@ -41,20 +54,34 @@ fn absent_key(keys: &[u64]) -> u64 {
 impl FastTable {
     /// The table of the block's tuples, inserted in order.
     pub fn build(keys: &[u64], payloads: &[u64]) -> FastTable {
-        let cap = (keys.len() * 2).next_power_of_two().max(16);
+        let count = (keys.len() * 2).div_ceil(SLOTS).next_power_of_two().max(4);
         let empty = absent_key(keys);
         let mut t = FastTable {
-            slots: vec![[empty, 0]; cap],
-            mask: cap - 1,
-            shift: 64 - cap.trailing_zeros(),
+            buckets: vec![
+                Bucket {
+                    keys: [empty; SLOTS],
+                    pays: [0; SLOTS],
+                };
+                count
+            ],
+            mask: count - 1,
+            shift: 64 - count.trailing_zeros(),
             empty,
         };
-        for (&k, &p) in keys.iter().zip(payloads) {
+        for (r, (&k, &p)) in keys.iter().zip(payloads).enumerate() {
+            if let Some(&ahead) = keys.get(r + PREFETCH_AHEAD) {
+                t.prefetch(ahead);
+            }
             let mut i = t.home(k);
-            while t.slots[i][0] != empty {
+            loop {
+                let b = &mut t.buckets[i];
+                if let Some(j) = b.keys.iter().position(|&x| x == empty) {
+                    b.keys[j] = k;
+                    b.pays[j] = p;
+                    break;
+                }
                 i = (i + 1) & t.mask;
             }
-            t.slots[i] = [k, p];
         }
         t
     }
@@ -67,10 +94,10 @@ impl FastTable {
     #[inline(always)]
     fn prefetch(&self, key: u64) {
         #[cfg(target_arch = "x86_64")]
-        // SAFETY: prefetch only hints the cache; `home` is always within `slots`.
+        // SAFETY: prefetch only hints the cache; `home` is always within `buckets`.
         unsafe {
             use std::arch::x86_64::{_mm_prefetch, _MM_HINT_T0};
-            let p = self.slots.as_ptr().add(self.home(key)) as *const i8;
+            let p = self.buckets.as_ptr().add(self.home(key)) as *const i8;
             _mm_prefetch::<_MM_HINT_T0>(p);
         }
         #[cfg(not(target_arch = "x86_64"))]
@@ -81,24 +108,30 @@ impl FastTable {
     /// order and a row's matches in build order.
     #[inline]
     pub fn probe_all<K: Copy + Into<u64>>(&self, keys: &[K], mut hit: impl FnMut(usize, u64)) {
-        let n = keys.len();
         for &k in keys.iter().take(PREFETCH_AHEAD) {
             self.prefetch(k.into());
         }
-        for r in 0..n {
-            if r + PREFETCH_AHEAD < n {
-                self.prefetch(keys[r + PREFETCH_AHEAD].into());
+        for (r, &k) in keys.iter().enumerate() {
+            if let Some(&ahead) = keys.get(r + PREFETCH_AHEAD) {
+                self.prefetch(ahead.into());
             }
-            let key: u64 = keys[r].into();
+            let key: u64 = k.into();
+            // `empty` is absent from the block's keys, so a probe for it has no match.
+            if key == self.empty {
+                continue;
+            }
             let mut i = self.home(key);
             loop {
-                let s = self.slots[i];
-                // Empty first: a probe key equal to `empty` is not in the block.
-                if s[0] == self.empty {
-                    break;
+                let b = &self.buckets[i];
+                let mut full = true;
+                for j in 0..SLOTS {
+                    if b.keys[j] == key {
+                        hit(r, b.pays[j]);
+                    }
+                    full &= b.keys[j] != self.empty;
                 }
-                if s[0] == key {
-                    hit(r, s[1]);
+                if !full {
+                    break;
                 }
                 i = (i + 1) & self.mask;
             }
@@ -123,7 +156,20 @@ mod tests {
     fn duplicates_in_build_order() {
         let t = FastTable::build(&[7, 3, 7, u64::MAX, 7], &[1, 2, 3, 4, 5]);
         let mut got = Vec::new();
-        t.probe_all(&[7u64, 9, u64::MAX, 3], |r, p| got.push((r, p)));
+        t.probe_all(&[7u64, 9, u64::MAX, 3, u64::MAX - 5], |r, p| {
+            got.push((r, p))
+        });
         assert_eq!(got, vec![(0, 1), (0, 3), (0, 5), (2, 4), (3, 2)]);
+    }
+
+    #[test]
+    fn a_key_spilling_over_many_buckets_keeps_build_order() {
+        // Twelve tuples of one key fill three buckets on one path, then other keys.
+        let keys: Vec<u64> = (0..12).map(|_| 42).chain(0..20).collect();
+        let pays: Vec<u64> = (0..keys.len() as u64).collect();
+        let t = FastTable::build(&keys, &pays);
+        let mut got = Vec::new();
+        t.probe_all(&[42u64], |_, p| got.push(p));
+        assert_eq!(got, (0..12).collect::<Vec<u64>>());
     }
 }

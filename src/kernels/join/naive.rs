@@ -16,7 +16,7 @@ pub fn nested_loop_join(
     plan: &BlockPlan,
 ) -> Result<(Vec<u8>, u64), JoinError> {
     let c = Cols::resolve(build, probe, p)?;
-    let w = c.writer(p);
+    let w = c.writer(p)?;
     let mut out = Vec::new();
     let mut records = 0u64;
     let mut pairs = 0u64;

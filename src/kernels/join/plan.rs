@@ -15,7 +15,8 @@ use serde::{Deserialize, Serialize};
 
 use super::BucketPick;
 use super::{
-    join_engine, plan_blocks, Buckets, HashFn, JoinIo, JoinParams, OutField, Overflow, Variant,
+    check_fields, join_engine, plan_blocks, Buckets, HashFn, JoinIo, JoinParams, OutField,
+    Overflow, Variant,
 };
 use crate::error::{Error, Result};
 use crate::kernels::seam::{
@@ -229,7 +230,11 @@ impl JoinConfig {
                             "kernel.fields: `{o}` (expected probe_row, key, probe_payload or build_payload)"
                         ))),
                     })
-                    .collect::<Result<_>>()?,
+                    .collect::<Result<Vec<_>>>()
+                    .and_then(|f| {
+                        check_fields(&f).map_err(|e| Error::input(format!("kernel.fields: {e}")))?;
+                        Ok(f)
+                    })?,
             ),
             "semi" => Variant::Semi,
             "count" => Variant::Count,

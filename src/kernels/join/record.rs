@@ -4,6 +4,7 @@
 //! write the fields the job lists; a semi-join writes the `u64` probe row id; count-only
 //! writes one `u64` record holding the number of matching pairs.
 
+use super::error::JoinError;
 use super::params::{OutField, Variant};
 use crate::table::ElemType;
 
@@ -13,18 +14,50 @@ pub type RecordLayout = Vec<(String, ElemType)>;
 /// Packs one variant's records.
 #[derive(Debug, Clone)]
 pub struct RecordWriter {
-    fields: Vec<(OutField, usize)>,
+    /// Per field: index into `[row, key, probe payload, build payload]` and byte width.
+    fields: Vec<(usize, usize)>,
     layout: RecordLayout,
+    record_bytes: usize,
+}
+
+/// The most fields a record has: each of the four sources at most once.
+const MAX_FIELDS: usize = 4;
+
+/// An inner join's fields: at least one, none twice (a record's field names are its
+/// columns).
+pub fn check_fields(fields: &[OutField]) -> Result<(), JoinError> {
+    if fields.is_empty() {
+        return Err(JoinError::Shape(
+            "no fields (an inner join writes at least one)".into(),
+        ));
+    }
+    match fields
+        .iter()
+        .enumerate()
+        .find(|(i, f)| fields[..*i].contains(f))
+    {
+        Some((_, f)) => Err(JoinError::Shape(format!("`{}` is listed twice", f.name()))),
+        None => Ok(()),
+    }
 }
 
 impl RecordWriter {
-    /// The writer for `variant` with the given key and payload types.
-    pub fn new(variant: &Variant, key: ElemType, probe_pay: ElemType, build_pay: ElemType) -> Self {
+    /// The writer for `variant` with the given key and payload types; an inner join must
+    /// list at least one field and none twice.
+    pub fn new(
+        variant: &Variant,
+        key: ElemType,
+        probe_pay: ElemType,
+        build_pay: ElemType,
+    ) -> Result<Self, JoinError> {
         let fields: Vec<OutField> = match variant {
             Variant::Inner(f) => f.clone(),
             Variant::Semi => vec![OutField::ProbeRowId],
             Variant::Count => Vec::new(),
         };
+        if let Variant::Inner(f) = variant {
+            check_fields(f)?;
+        }
         let ty = |f: OutField| match f {
             OutField::ProbeRowId => ElemType::U64,
             OutField::Key => key,
@@ -38,13 +71,20 @@ impl RecordWriter {
         if matches!(variant, Variant::Count) {
             layout.push(("count".into(), ElemType::U64));
         }
-        RecordWriter {
+        let source = |f: OutField| match f {
+            OutField::ProbeRowId => 0,
+            OutField::Key => 1,
+            OutField::ProbePayload => 2,
+            OutField::BuildPayload => 3,
+        };
+        Ok(RecordWriter {
             fields: fields
                 .iter()
-                .map(|&f| (f, (ty(f).bits() / 8) as usize))
+                .map(|&f| (source(f), (ty(f).bits() / 8) as usize))
                 .collect(),
+            record_bytes: layout.iter().map(|(_, t)| (t.bits() / 8) as usize).sum(),
             layout,
-        }
+        })
     }
 
     /// Field names and types.
@@ -54,23 +94,36 @@ impl RecordWriter {
 
     /// Bytes per record.
     pub fn record_bytes(&self) -> u64 {
-        self.layout
-            .iter()
-            .map(|(_, t)| u64::from(t.bits() / 8))
-            .sum()
+        self.record_bytes as u64
     }
 
     /// Appends the record of one match.
     #[inline(always)]
     pub fn write(&self, out: &mut Vec<u8>, row: u64, key: u64, probe_pay: u64, build_pay: u64) {
-        for &(f, w) in &self.fields {
-            let v = match f {
-                OutField::ProbeRowId => row,
-                OutField::Key => key,
-                OutField::ProbePayload => probe_pay,
-                OutField::BuildPayload => build_pay,
-            };
-            out.extend_from_slice(&v.to_le_bytes()[..w]);
+        let src = [row, key, probe_pay, build_pay];
+        // Every field is stored as 8 bytes and the offset advances by its width, so a
+        // record is packed without a branch per width; the slack word takes the tail.
+        let mut rec = [0u8; 8 * (MAX_FIELDS + 1)];
+        let mut at = 0;
+        for &(s, w) in &self.fields {
+            rec[at..at + 8].copy_from_slice(&src[s].to_le_bytes());
+            at += w;
+        }
+        // A copy of constant length is inlined; a variable one is a call per record.
+        match at {
+            4 => put::<4>(out, &rec),
+            8 => put::<8>(out, &rec),
+            12 => put::<12>(out, &rec),
+            16 => put::<16>(out, &rec),
+            20 => put::<20>(out, &rec),
+            24 => put::<24>(out, &rec),
+            28 => put::<28>(out, &rec),
+            _ => out.extend_from_slice(&rec[..at]),
         }
     }
+}
+
+#[inline(always)]
+fn put<const N: usize>(out: &mut Vec<u8>, rec: &[u8]) {
+    out.extend_from_slice(&rec[..N]);
 }
