@@ -379,7 +379,7 @@ mod tests {
             (
                 "@ffffffff\n0000\n",
                 16,
-                "line 2: word address @ffffffff lies beyond the 4294967296-byte limit of a dump",
+                "line 2: word address @ffffffff lies beyond the 67108864-byte limit of this dump",
             ),
             (
                 "00\n/* never\nclosed\n",
