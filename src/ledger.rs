@@ -177,6 +177,17 @@ impl Cursor {
         }
     }
 
+    /// A cursor at `addr` that continues a stream which has already touched the byte
+    /// before `addr` (the previous chunk of the same region): a word holding both bytes is
+    /// not counted again. At a word boundary it is the same as [`Cursor::new`].
+    pub fn continuing(addr: u64, word_bytes: u64) -> Cursor {
+        let mut c = Cursor::new(addr, word_bytes);
+        if addr > 0 {
+            c.last_word = Some((addr - 1) / word_bytes);
+        }
+        c
+    }
+
     /// Counts `bytes` bytes holding `rows` rows at the cursor, then moves past them.
     #[inline]
     pub fn touch(&mut self, bytes: u64, rows: u64) {

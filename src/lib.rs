@@ -9,6 +9,7 @@
 pub mod bench;
 pub mod check;
 pub mod error;
+pub mod fuzzing;
 pub mod gen;
 pub mod image;
 pub mod job;

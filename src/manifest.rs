@@ -144,7 +144,40 @@ impl Manifest {
                 m.format_version
             )));
         }
+        m.validate().map_err(|e| e.context(p.display()))?;
         Ok(m)
+    }
+
+    /// Checks what readers rely on: every path is relative and stays inside the directory
+    /// (no `..`, no root, no empty part), and every checksum is 64 lowercase hex digits.
+    pub fn validate(&self) -> Result<()> {
+        for (i, f) in self.files.iter().enumerate() {
+            let inside = !f.path.is_empty()
+                && !f.path.starts_with('/')
+                && f.path
+                    .split('/')
+                    .all(|c| !c.is_empty() && c != "." && c != "..")
+                && !f.path.contains('\\')
+                && !Path::new(&f.path).is_absolute();
+            if !inside {
+                return Err(Error::input(format!(
+                    "files[{i}]: path `{}` must be relative and inside the run directory",
+                    f.path
+                )));
+            }
+            let hex = f.sha256.len() == 64
+                && f.sha256
+                    .bytes()
+                    .all(|b| matches!(b, b'0'..=b'9' | b'a'..=b'f'));
+            if !hex {
+                return Err(Error::input(format!(
+                    "files[{i}] ({}): sha256 `{}` is not 64 lowercase hex digits",
+                    f.path,
+                    f.sha256.escape_debug()
+                )));
+            }
+        }
+        Ok(())
     }
 
     /// Pretty JSON text with a final newline.

@@ -76,14 +76,19 @@ fn run_writes_a_complete_directory_that_inspect_verifies() {
     );
 }
 
+/// Two partitions of 2^21 rows: the scan cuts a partition into about eight chunks per
+/// thread, so 1 and 2 threads split each partition differently (eight and sixteen chunks).
+const SPLIT_JOB: &str = "[input]\nrows = 4194304\n[[input.columns]]\nname = \"v\"\ntype = \"u16\"\ndist = \"uniform\"\nmin = 0\nmax = 60000\n[[input.columns]]\nname = \"w\"\ntype = \"u8\"\ndist = \"uniform\"\nmin = 0\nmax = 200\n[layout]\nword_bits = 128\npartitions = 2\n[kernel]\nname = \"scan\"\npredicate = \"v < 300 and w > 9\"\noutput = \"project\"\nproject = [\"w\"]\n[output]\nformats = [\"bin\"]\nchannel_images = false\ntyped_npy = false\n";
+
 #[test]
 fn output_is_identical_for_any_thread_count_and_seeds_make_subdirectories() {
     let t = TempDir::new("threads");
+    let job = t.write("split.toml", SPLIT_JOB);
     let (a, b) = (t.join("a"), t.join("b"));
     for (dir, n) in [(&a, "1"), (&b, "2")] {
         let o = weir(&[
             "run",
-            "data/jobs/demo.toml",
+            job.to_str().unwrap(),
             "--out",
             dir.to_str().unwrap(),
             "--threads",

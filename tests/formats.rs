@@ -333,7 +333,7 @@ fn bad_csv_is_refused_with_file_line_and_value() {
         (
             "nonnum.csv",
             "a:u8,b:f32\n1,2\n3,4.5\n5,fast\n",
-            "line 4: column `b`: `fast` is not a f32 number",
+            "line 4: column `b`: `fast` is not an f32 number",
         ),
         (
             "u8.csv",

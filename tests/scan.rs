@@ -11,7 +11,7 @@ use weir::gen::{ColumnGen, Dist, Shape, Skew, TableGen};
 use weir::kernels::predicate::{compile, Bound, CmpOp};
 use weir::kernels::scan::{
     naive_scan, scan_partition, EngineIo, Isa, ScanOutput, ScanParams, ScanResult, CHUNK_ROWS,
-    COUNT_BYTES, PHASE,
+    COUNT_BYTES, MIN_CHUNK_ROWS, PHASE,
 };
 use weir::ledger::{Direction, Key, Traffic};
 use weir::table::{byte_len, column_bytes, Column, ColumnData, ElemType, Table};
@@ -930,13 +930,14 @@ proptest! {
     }
 }
 
-/// A 96-bit word holds three `u32` values, so the first chunk's 16384 rows end a third of
-/// the way into word 5461, which the second chunk's first row shares: streaming the column
-/// touches ceil(65540 / 12) = 5462 words, not one more per chunk boundary (closed form from
-/// the counting rules in DEVELOPERS.md, common practice).
+/// A column whose base is not word-aligned (4 bytes into a 96-bit word): the scan's chunks
+/// hold whole multiples of three `u32` values, so every chunk boundary falls 4 bytes into a
+/// word, which the chunks on both sides touch. Streaming the column touches the words from
+/// byte 4 to byte 4 + 4·rows − 1, each once, however many chunks there are (closed form
+/// from the counting rules in DEVELOPERS.md, common practice).
 #[test]
 fn a_word_shared_by_two_chunks_is_counted_once() {
-    let rows = CHUNK_ROWS + 1;
+    let rows = 3 * MIN_CHUNK_ROWS;
     let col = Column::new(
         "k",
         ElemType::U32,
@@ -944,14 +945,15 @@ fn a_word_shared_by_two_chunks_is_counted_once() {
     )
     .unwrap();
     let table = Table::new("t", vec![col]).unwrap();
+    let base = 4;
     let io = EngineIo {
         engine: 0,
         channel: 0,
         word_bytes: 12,
-        column_bases: vec![0],
+        column_bases: vec![base],
         row_base: None,
-        out_base: 12 * 6000,
-        count_base: 12 * 7000,
+        out_base: 12 * 600_000,
+        count_base: 12 * 700_000,
     };
     let params = ScanParams {
         predicate: compile("k < 0", &table.schema()).unwrap(),
@@ -965,11 +967,12 @@ fn a_word_shared_by_two_chunks_is_counted_once() {
         .get(&Key::device(0, PHASE, 0, Direction::Read))
         .unwrap();
     let bytes = 4 * rows as u64;
+    let words = (base + bytes - 1) / 12 - base / 12 + 1;
     assert_eq!(
         read,
         Traffic {
             bytes,
-            words: bytes.div_ceil(12),
+            words,
             rows: rows as u64
         }
     );

@@ -218,7 +218,13 @@ fn check_one(
     opts: &CheckOptions,
 ) -> Result<OutputCheck> {
     let g = o.best();
-    let mut shape = Shape::of(g, m.word_bits);
+    let mut shape = Shape::of(g, m.word_bits).map_err(|e| {
+        Error::input(format!(
+            "{}: {}: {e}",
+            gdir.join(crate::manifest::MANIFEST_FILE).display(),
+            g.path
+        ))
+    })?;
     let mut out = OutputCheck {
         output: o.stem.clone(),
         engine: g.partition,
@@ -239,6 +245,15 @@ fn check_one(
         return Ok(out);
     }
     let gold = load_golden(gdir, g, m.word_bits)?;
+    if (gold.len() as u64) < shape.payload() {
+        return Err(Error::input(format!(
+            "{}: holds {} bytes of records, the manifest's {} records need {}; re-run the job",
+            gdir.join(&g.path).display(),
+            gold.len(),
+            shape.records,
+            shape.payload()
+        )));
+    }
     shape.words = (gold.len() as u64 / shape.word_bytes).max(shape.words);
     let dump = read_agreeing(files, &shape)?;
     out.device_file = Some(files[0].display().to_string());

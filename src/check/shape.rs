@@ -36,8 +36,43 @@ pub struct Shape {
 
 impl Shape {
     /// The shape of golden entry `g` in a manifest of `word_bits`-bit words.
-    pub fn of(g: &FileEntry, word_bits: u32) -> Shape {
-        let word_bytes = u64::from(g.word_bits.unwrap_or(word_bits) / 8);
+    pub fn of(g: &FileEntry, word_bits: u32) -> Result<Shape, String> {
+        let bits = g.word_bits.unwrap_or(word_bits);
+        if bits == 0 || !bits.is_multiple_of(8) || bits > 4096 {
+            return Err(format!(
+                "word_bits {bits} is not a whole number of bytes in 8..=4096"
+            ));
+        }
+        let word_bytes = u64::from(bits / 8);
+        let (records, rec) = (g.records.unwrap_or(0), g.record_bytes.unwrap_or(0));
+        let payload = match rec {
+            0 => Some(records.div_ceil(8)),
+            _ => records.checked_mul(rec),
+        };
+        let payload = payload
+            .filter(|&p| g.payload_bytes.is_none_or(|b| b == p))
+            .ok_or_else(|| {
+                format!(
+                    "records {records} × record_bytes {rec} does not give its payload_bytes {}",
+                    g.payload_bytes.map_or("?".into(), |b| b.to_string())
+                )
+            })?;
+        let field_bits = g
+            .fields
+            .iter()
+            .flatten()
+            .try_fold(0u64, |a, f| a.checked_add(u64::from(f.bits)));
+        if field_bits.is_some_and(|b| rec > 0 && b > rec * 8) || field_bits.is_none() {
+            return Err(format!("its fields are wider than record_bytes {rec}"));
+        }
+        if g.words
+            .is_some_and(|w| w.checked_mul(word_bytes).is_none_or(|b| b < payload))
+        {
+            return Err(format!(
+                "words {} cannot hold payload_bytes {payload}",
+                g.words.unwrap_or(0)
+            ));
+        }
         let mut bit = 0;
         let fields = g
             .fields
@@ -53,15 +88,15 @@ impl Shape {
                 span
             })
             .collect();
-        Shape {
-            records: g.records.unwrap_or(0),
-            rec: g.record_bytes.unwrap_or(0),
+        Ok(Shape {
+            records,
+            rec,
             word_bytes,
             words: g.words.unwrap_or(0),
             base_word: g.base.map(|b| b / word_bytes),
             elem: g.elem.clone().unwrap_or_default(),
             fields,
-        }
+        })
     }
 
     /// Bytes the records occupy (bitmap: whole bytes holding the bits).

@@ -179,7 +179,7 @@ pub struct GenScanArgs {
 #[derive(Debug, Args)]
 pub struct CalibrateArgs {
     /// Measure with 1..=N threads (default: all cores).
-    #[arg(long)]
+    #[arg(long, value_parser = at_least_one)]
     pub threads: Option<usize>,
     /// Buffer size in bytes (accepts suffixes K, M, G; default 1G).
     #[arg(long, default_value = "1G")]
@@ -393,4 +393,13 @@ pub struct BenchJoinArgs {
     /// Replace existing output files.
     #[arg(long)]
     pub force: bool,
+}
+
+/// A count that must be at least 1 (thread counts).
+fn at_least_one(s: &str) -> Result<usize, String> {
+    match s.parse::<usize>() {
+        Ok(0) => Err("must be at least 1".into()),
+        Ok(n) => Ok(n),
+        Err(e) => Err(e.to_string()),
+    }
 }

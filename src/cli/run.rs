@@ -40,6 +40,9 @@ fn execute(
         },
     )?;
     pb.finish_and_clear();
+    for w in &done.warnings {
+        eprintln!("weir: warning: {w}");
+    }
     for d in &done.stale_removed {
         say!(
             "removed {}, left by an interrupted earlier run",

@@ -48,14 +48,13 @@ pub enum HexProblem {
         /// What is wrong with it.
         why: &'static str,
     },
-    /// A word address whose dense dump would exceed [`MAX_DUMP_BYTES`].
-    #[error(
-        "word address @{addr:x} lies beyond the {}-byte limit of a dump",
-        MAX_DUMP_BYTES
-    )]
+    /// A word address whose dense dump would exceed the limit of [`dense_limit`].
+    #[error("word address @{addr:x} lies beyond the {limit}-byte limit of this dump")]
     TooFar {
         /// The word address reached.
         addr: u64,
+        /// The limit for this dump's text.
+        limit: u64,
     },
     /// A word address that an earlier part of the file already filled.
     #[error("word address @{addr:x} was already written earlier in the file")]
@@ -77,6 +76,19 @@ fn article(n: u32) -> &'static str {
     }
 }
 
+/// Bytes a sparse dump may span whatever its length: `@` addresses are free to jump this far.
+pub const SPARSE_DUMP_BYTES: u64 = 64 << 20;
+
+/// The most bytes the dense form of a hex text of `text_bytes` may take: a text of N bytes
+/// holds at most N/2 bytes of words, so 8·N never refuses a dump without gaps, and
+/// [`SPARSE_DUMP_BYTES`] lets `@` addresses jump far into a channel from a short text.
+/// Without it a ten-byte file naming a far address would ask for gigabytes.
+pub fn dense_limit(text_bytes: usize) -> u64 {
+    (text_bytes as u64)
+        .saturating_mul(8)
+        .clamp(SPARSE_DUMP_BYTES, MAX_DUMP_BYTES)
+}
+
 /// Parses a hex image of `word_bits`-bit words; word `i` of the dump is word address `i`.
 pub fn read_hex(text: &str, word_bits: u32) -> Result<WordDump, ImageError> {
     let word_bytes = check_word_bits(word_bits)? as usize;
@@ -85,6 +97,7 @@ pub fn read_hex(text: &str, word_bits: u32) -> Result<WordDump, ImageError> {
         data: Vec::new(),
         state: Vec::new(),
     };
+    let limit = dense_limit(text.len());
     let mut next = 0u64;
     let mut comment_from: Option<usize> = None;
     for (index, mut rest) in text.split('\n').enumerate() {
@@ -110,8 +123,8 @@ pub fn read_hex(text: &str, word_bits: u32) -> Result<WordDump, ImageError> {
             if token.starts_with('@') {
                 next = parse_address(token).map_err(at_line)?;
             } else {
-                put_word(&mut dump, next, token, word_bits).map_err(at_line)?;
-                // put_word refused any address past MAX_DUMP_BYTES, so this cannot overflow.
+                put_word(&mut dump, next, token, word_bits, limit).map_err(at_line)?;
+                // put_word refused any address past the limit, so this cannot overflow.
                 next += 1;
             }
         }
@@ -157,7 +170,13 @@ fn parse_address(token: &str) -> Result<u64, HexProblem> {
 }
 
 /// Stores word `token` at `addr`, growing the dump with absent words up to it.
-fn put_word(dump: &mut WordDump, addr: u64, token: &str, bits: u32) -> Result<(), HexProblem> {
+fn put_word(
+    dump: &mut WordDump,
+    addr: u64,
+    token: &str,
+    bits: u32,
+    limit: u64,
+) -> Result<(), HexProblem> {
     let is_unknown = |ch: char| matches!(ch, 'x' | 'X' | 'z' | 'Z');
     let is_digit = |ch: char| ch != '_';
     if let Some(digit) = token
@@ -193,9 +212,9 @@ fn put_word(dump: &mut WordDump, addr: u64, token: &str, bits: u32) -> Result<()
     let index = addr
         .checked_add(1)
         .and_then(|n| n.checked_mul(wb as u64))
-        .filter(|&end| end <= MAX_DUMP_BYTES)
+        .filter(|&end| end <= limit)
         .and_then(|_| usize::try_from(addr).ok())
-        .ok_or(HexProblem::TooFar { addr })?;
+        .ok_or(HexProblem::TooFar { addr, limit })?;
     if index >= dump.state.len() {
         dump.state.resize(index + 1, WordState::Absent);
         dump.data.resize((index + 1) * wb, 0);
@@ -360,7 +379,7 @@ mod tests {
             (
                 "@ffffffff\n0000\n",
                 16,
-                "line 2: word address @ffffffff lies beyond the 4294967296-byte limit of a dump",
+                "line 2: word address @ffffffff lies beyond the 67108864-byte limit of this dump",
             ),
             (
                 "00\n/* never\nclosed\n",

@@ -202,3 +202,18 @@ proptest! {
         }
     }
 }
+
+#[test]
+fn a_short_hex_text_cannot_reach_far_addresses() {
+    // Ten bytes naming word 2^26 of 8-bit words would span 64 MiB + 1 byte densely.
+    let e = read_hex("@4000000 1", 8).unwrap_err().to_string();
+    assert!(e.contains("beyond the 67108864-byte limit"), "{e}");
+    // Within the sparse allowance, a far address is fine and the gap is absent words.
+    let d = read_hex("@80000 1", 512).unwrap();
+    assert_eq!(d.words(), 0x80001);
+    assert_eq!(d.state[0], WordState::Absent);
+    assert_eq!(d.state[0x80000], WordState::Written);
+    // A longer text may reach further: 8 bytes of dense form per byte of text.
+    assert_eq!(dense_limit(16 << 20), 128 << 20);
+    assert_eq!(dense_limit(1 << 40), MAX_DUMP_BYTES);
+}

@@ -28,6 +28,8 @@ pub struct Runs {
     pub runs: Vec<(Option<u64>, RunSummary)>,
     /// Temporary directories of dead earlier runs into the same target, removed.
     pub stale_removed: Vec<std::path::PathBuf>,
+    /// The bound kernel's warnings (the same for every seed).
+    pub warnings: Vec<String>,
 }
 
 /// Runs `spec` into `out` (or, with `seeds`, once per seed into `out/seed-N/`); the
@@ -59,6 +61,7 @@ pub fn run(
             .collect::<Result<_>>()?
         }
     };
+    let warnings = plans[0].1.kernel.warnings();
     let dir = OutDir::create(out, force, protect)?;
     let stale_removed = dir.stale_removed().to_vec();
     let mut results = Vec::new();
@@ -70,5 +73,6 @@ pub fn run(
     Ok(Runs {
         runs: results,
         stale_removed,
+        warnings,
     })
 }

@@ -242,4 +242,10 @@ pub trait Kernel: Send + Sync + std::fmt::Debug {
     fn host_variant(&self) -> &'static str {
         "portable"
     }
+
+    /// Doubts about the job that do not stop it (a predicate that can never match), one
+    /// line each, naming the key.
+    fn warnings(&self) -> Vec<String> {
+        Vec::new()
+    }
 }

@@ -58,14 +58,28 @@ fn parse_cell<T: Elem>(cell: &str, ty: ElemType) -> std::result::Result<T, Strin
     if !ty.is_float() && t.parse::<i128>().is_ok() {
         return Err(format!("value {t} is out of range for {ty}"));
     }
-    Err(format!("`{t}` is not a {ty} number"))
+    if t.is_empty() {
+        return Err(format!("empty cell, expected {} {ty} number", article(ty)));
+    }
+    Err(format!("`{t}` is not {} {ty} number", article(ty)))
+}
+
+/// "an" before a type name read with a vowel sound first (`i16`, `f32`), else "a" (`u8`).
+fn article(ty: ElemType) -> &'static str {
+    if ty.is_float() || ty.is_signed_int() {
+        "an"
+    } else {
+        "a"
+    }
 }
 
 fn push_cell(data: &mut ColumnData, ty: ElemType, cell: &str) -> std::result::Result<(), String> {
     if ty.is_sub_byte() {
         let max = (1u8 << ty.bits()) - 1;
-        let v: u8 = parse_cell(cell, ElemType::U8)
-            .map_err(|_| format!("`{}` is not a {ty} value (0..={max})", cell.trim()))?;
+        let v: u8 = parse_cell(cell, ElemType::U8).map_err(|_| match cell.trim() {
+            "" => format!("empty cell, expected a {ty} value (0..={max})"),
+            t => format!("`{t}` is not a {ty} value (0..={max})"),
+        })?;
         if v > max {
             return Err(format!("value {v} is out of range for {ty} (0..={max})"));
         }
@@ -82,13 +96,29 @@ fn push_cell(data: &mut ColumnData, ty: ElemType, cell: &str) -> std::result::Re
 /// header cell must carry its type (`name:type`). With both, they must agree.
 pub fn read_csv(path: &Path, table: &str, schema: Option<&[(String, ElemType)]>) -> Result<Table> {
     let file = std::fs::File::open(path).map_err(|e| Error::read(path, e))?;
+    read_csv_from(std::io::BufReader::new(file), path, table, schema)
+}
+
+/// Reads a CSV table from `reader` as [`read_csv`] does; `path` names it in errors.
+pub fn read_csv_from<R: std::io::Read>(
+    reader: R,
+    path: &Path,
+    table: &str,
+    schema: Option<&[(String, ElemType)]>,
+) -> Result<Table> {
     let at =
         |line: u64, msg: String| Error::input(format!("{}, line {line}: {msg}", path.display()));
     let mut rdr = csv::ReaderBuilder::new()
         .has_headers(true)
         .flexible(true)
-        .from_reader(std::io::BufReader::new(file));
+        .from_reader(reader);
     let header = rdr.headers().map_err(|e| at(1, e.to_string()))?.clone();
+    if header.iter().all(|c| c.trim().is_empty()) {
+        return Err(Error::input(format!(
+            "{}: the file is empty or its first line is blank; it needs a header line naming the columns",
+            path.display()
+        )));
+    }
     let mut cols: Vec<(String, ElemType, Option<QFormat>)> = Vec::new();
     for (i, cell) in header.iter().enumerate() {
         let (name, ty, q) = parse_header_cell(cell).map_err(|m| at(1, m))?;
@@ -235,7 +265,7 @@ mod tests {
         let p = tmp("nonnum", "a:u8,b:f64\n1,abc\n");
         let e = read_csv(&p, "t", None).unwrap_err().to_string();
         assert!(
-            e.ends_with("line 2: column `b`: `abc` is not a f64 number"),
+            e.ends_with("line 2: column `b`: `abc` is not an f64 number"),
             "{e}"
         );
         let p = tmp("untyped", "a,b\n1,2\n");

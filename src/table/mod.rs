@@ -9,7 +9,7 @@ mod csv_io;
 mod types;
 
 pub use column::{Column, ColumnData, Table};
-pub use csv_io::{parse_q, read_csv, write_csv};
+pub use csv_io::{parse_q, read_csv, read_csv_from, write_csv};
 pub use types::{Elem, ElemType, QFormat};
 
 use crate::error::{Error, Result};
@@ -116,7 +116,18 @@ pub fn write_npy_column<W: std::io::Write>(w: &mut W, col: &Column) -> std::io::
 /// (a sub-byte type expects `|u1` and checks every value fits).
 pub fn read_npy_column(path: &std::path::Path, name: &str, ty: Option<ElemType>) -> Result<Column> {
     let bytes = std::fs::read(path).map_err(|e| Error::read(path, e))?;
-    let (header, data) = crate::npy::read_npy(&bytes)
+    npy_column_from_bytes(&bytes, path, name, ty)
+}
+
+/// A 1-D `.npy` column from the file's bytes, as [`read_npy_column`] reads it; `path` names
+/// it in errors.
+pub fn npy_column_from_bytes(
+    bytes: &[u8],
+    path: &std::path::Path,
+    name: &str,
+    ty: Option<ElemType>,
+) -> Result<Column> {
+    let (header, data) = crate::npy::read_npy(bytes)
         .map_err(|e| Error::input(format!("{}: {e}", path.display())))?;
     if header.shape.len() != 1 {
         return Err(Error::input(format!(

@@ -84,6 +84,103 @@ impl Bound {
     }
 }
 
+impl Bound {
+    /// When no row can match: the name of a column on which the terms of the top-level
+    /// `and` leave no value (a `between` with its bounds reversed, `x < 5 and x > 9`), with
+    /// the interval they ask for. Terms under `or` and `not`, and `in`/`!=`, are not looked
+    /// at, so `None` does not promise that a row matches.
+    pub fn never_matches(&self, schema: &[(String, ElemType)]) -> Option<String> {
+        let mut ints: BTreeMap<usize, ColumnRange> = BTreeMap::new();
+        let mut floats: BTreeMap<usize, (f64, f64)> = BTreeMap::new();
+        self.conjuncts(&mut |col, test| {
+            let Some((_, ty)) = schema.get(col) else {
+                return;
+            };
+            if let Some((min, max)) = int_bounds(*ty) {
+                let r = ints.entry(col).or_insert(ColumnRange {
+                    col,
+                    lo: min,
+                    hi: max,
+                });
+                if let Some((lo, hi)) = int_interval(test, min, max) {
+                    r.lo = r.lo.max(lo);
+                    r.hi = r.hi.min(hi);
+                }
+            } else if let Some((lo, hi)) = float_interval(test) {
+                let r = floats
+                    .entry(col)
+                    .or_insert((f64::NEG_INFINITY, f64::INFINITY));
+                r.0 = r.0.max(lo);
+                r.1 = r.1.min(hi);
+            }
+        });
+        let name = |c: usize| &schema[c].0;
+        if let Some(r) = ints.values().find(|r| r.is_empty()) {
+            return Some(format!(
+                "no value of `{}` lies in {}..={} as the terms require",
+                name(r.col),
+                r.lo,
+                r.hi
+            ));
+        }
+        floats.iter().find(|(_, r)| r.0 > r.1).map(|(c, r)| {
+            format!(
+                "no value of `{}` lies in {}..={} as the terms require",
+                name(*c),
+                r.0,
+                r.1
+            )
+        })
+    }
+
+    fn conjuncts(&self, f: &mut dyn FnMut(usize, &Test)) {
+        match self {
+            Bound::And(a, b) => {
+                a.conjuncts(f);
+                b.conjuncts(f);
+            }
+            Bound::Leaf { col, test } => f(*col, test),
+            Bound::Or(..) | Bound::Not(_) => {}
+        }
+    }
+}
+
+/// The inclusive interval an integer term allows, or `None` when it is no interval.
+fn int_interval(test: &Test, min: i128, max: i128) -> Option<(i128, i128)> {
+    match test {
+        Test::Cmp(op, s) => {
+            let c = int_of(*s)?;
+            match op {
+                CmpOp::Lt => Some((min, c - 1)),
+                CmpOp::Le => Some((min, c)),
+                CmpOp::Eq => Some((c, c)),
+                CmpOp::Ge => Some((c, max)),
+                CmpOp::Gt => Some((c + 1, max)),
+                CmpOp::Ne => None,
+            }
+        }
+        Test::Between(lo, hi) => Some((int_of(*lo)?, int_of(*hi)?)),
+        Test::In(_) => None,
+    }
+}
+
+/// The closed interval a float term allows (`<` and `>` taken as closed, which can only
+/// miss an empty case, never report a false one).
+fn float_interval(test: &Test) -> Option<(f64, f64)> {
+    let f = |s: &Scalar| match *s {
+        Scalar::F(v) => Some(v),
+        Scalar::U(v) => Some(v as f64),
+        Scalar::I(v) => Some(v as f64),
+    };
+    match test {
+        Test::Cmp(CmpOp::Lt | CmpOp::Le, s) => Some((f64::NEG_INFINITY, f(s)?)),
+        Test::Cmp(CmpOp::Gt | CmpOp::Ge, s) => Some((f(s)?, f64::INFINITY)),
+        Test::Cmp(CmpOp::Eq, s) => Some((f(s)?, f(s)?)),
+        Test::Between(lo, hi) => Some((f(lo)?, f(hi)?)),
+        _ => None,
+    }
+}
+
 fn int_of(s: Scalar) -> Option<i128> {
     match s {
         Scalar::U(v) => Some(v.into()),

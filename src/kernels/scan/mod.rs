@@ -351,23 +351,29 @@ pub fn scan_partition_into(
 }
 
 /// The device reads of rows `r`: every streamed column (or the whole records of a
-/// row-major image), counted from their bases; rows are logical, counted once.
+/// row-major image), counted from their bases; rows are logical, counted once. A chunk
+/// after the first continues its column's stream, so when a base is not word-aligned the
+/// word it shares with the previous chunk is counted by that chunk only.
 fn chunk_reads(table: &Table, cols: &[usize], io: &EngineIo, r: std::ops::Range<usize>) -> Traffic {
     let mut read = Traffic::default();
     let (start, len) = (r.start as u64, r.len() as u64);
+    let cursor = |addr: u64| match start {
+        0 => Cursor::new(addr, io.word_bytes),
+        _ => Cursor::continuing(addr, io.word_bytes),
+    };
     if let Some(base) = io.row_base {
         let rec: u64 = table
             .columns
             .iter()
             .map(|c| u64::from(c.ty.bits() / 8))
             .sum();
-        let mut cur = Cursor::new(base + start * rec, io.word_bytes);
+        let mut cur = cursor(base + start * rec);
         cur.touch(len * rec, len);
         read += cur.traffic;
     } else {
         for (k, &ci) in cols.iter().enumerate() {
             let ty = table.columns[ci].ty;
-            let mut cur = Cursor::new(io.column_bases[ci] + byte_len(ty, start), io.word_bytes);
+            let mut cur = cursor(io.column_bases[ci] + byte_len(ty, start));
             cur.touch(byte_len(ty, len), if k == 0 { len } else { 0 });
             read += cur.traffic;
         }

@@ -54,6 +54,7 @@ pub struct ScanKernel {
     schema: Vec<(String, ElemType)>,
     params: ScanParams,
     isa: Isa,
+    warnings: Vec<String>,
 }
 
 impl ScanConfig {
@@ -73,6 +74,11 @@ impl ScanConfig {
         let schema = t.columns.clone();
         let pred = predicate::compile(&self.predicate, &schema)
             .map_err(|e| Error::input(format!("kernel.predicate: {e}\n{}", e.caret())))?;
+        let warnings = pred
+            .never_matches(&schema)
+            .map(|why| format!("kernel.predicate can never match: {why}"))
+            .into_iter()
+            .collect();
         let params = ScanParams {
             predicate: fuse_ranges(&pred, &schema),
             output: self.output_kind(&schema)?,
@@ -92,6 +98,7 @@ impl ScanConfig {
             schema,
             params,
             isa: Isa::detect(),
+            warnings,
         })
     }
 
@@ -187,6 +194,10 @@ impl ScanKernel {
 impl Kernel for ScanKernel {
     fn name(&self) -> &'static str {
         "scan"
+    }
+
+    fn warnings(&self) -> Vec<String> {
+        self.warnings.clone()
     }
 
     fn inputs(&self) -> Vec<TableUse> {

@@ -1,0 +1,6 @@
+//! Fuzzes `weir::fuzzing::check_dump`; see DEVELOPERS.md, "Fuzzing".
+#![no_main]
+
+libfuzzer_sys::fuzz_target!(|data: &[u8]| {
+    let _ = weir::fuzzing::check_dump(data);
+});

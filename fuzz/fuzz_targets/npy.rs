@@ -1,0 +1,6 @@
+//! Fuzzes `weir::fuzzing::npy`; see DEVELOPERS.md, "Fuzzing".
+#![no_main]
+
+libfuzzer_sys::fuzz_target!(|data: &[u8]| {
+    let _ = weir::fuzzing::npy(data);
+});
