@@ -526,3 +526,39 @@ fn the_join_job_is_thread_invariant_and_agrees_with_sqlite() {
         .unwrap();
     assert_eq!(ours, sqlite);
 }
+
+#[test]
+fn narrow_keys_and_payloads_are_widened_and_read_at_their_own_width() {
+    // The same keys as u16 (build, probe keys and probe payloads) and as u32 columns.
+    let narrow = |name: &str, keys: &[u16], pays: &[u16]| {
+        Table::new(
+            name,
+            vec![
+                Column::new("key", ElemType::U16, ColumnData::U16(keys.to_vec())).unwrap(),
+                Column::new("payload", ElemType::U16, ColumnData::U16(pays.to_vec())).unwrap(),
+            ],
+        )
+        .unwrap()
+    };
+    let sk: Vec<u16> = (0..40).map(|i| i * 3).collect();
+    let lk: Vec<u16> = (0..500).map(|i| (i * 7 % 150) as u16).collect();
+    let lp: Vec<u16> = (0..500).map(|i| 60_000 - i as u16).collect();
+    let widen = |v: &[u16]| v.iter().map(|&x| u64::from(x)).collect::<Vec<u64>>();
+    let (b16, l16) = (narrow("s", &sk, &sk), narrow("l", &lk, &lp));
+    let b32 = table("s", widen(&sk), widen(&sk), false);
+    let l32 = table("l", widen(&lk), widen(&lp), false);
+    let p = params(false);
+    let (want, n) = mirror(&b32, &l32, &p).unwrap();
+    assert!(n > 0);
+    assert_eq!(mirror(&b16, &l16, &p).unwrap(), (want.clone(), n));
+    assert_eq!(fast(&b16, &l16, &p), (want, n));
+    // The probe phase reads 2 bytes per key and per payload, not the widened 4.
+    let io = JoinIo::host();
+    let r = join_engine(&b16, &l16, 0, &p, &io, &mut |_| {}).unwrap();
+    let probe_read = r.ledger.sum(|k| {
+        k.phase == Phase::nth("probe", 0)
+            && k.region != Region::OnChip
+            && k.direction == Direction::Read
+    });
+    assert_eq!(probe_read.bytes, 500 * 2 * 2);
+}

@@ -36,7 +36,19 @@ pub enum Outcome {
     Mismatch,
 }
 
-/// Exit code of a run stopped by SIGINT (128 + 2) or SIGTERM (128 + 15).
+/// Set once a signal arrived: the signal thread owns the exit from then on.
+static STOPPING: std::sync::atomic::AtomicBool = std::sync::atomic::AtomicBool::new(false);
+
+/// Waits for the signal thread's exit when a signal arrived, so that an error caused by
+/// the partial output vanishing under a running command does not exit first.
+fn yield_to_signal() {
+    while STOPPING.load(std::sync::atomic::Ordering::SeqCst) {
+        std::thread::sleep(std::time::Duration::from_millis(50));
+    }
+}
+
+/// On SIGINT or SIGTERM: removes the partial output and exits 130 (128 + 2) or 143
+/// (128 + 15).
 fn on_signals() {
     use signal_hook::consts::{SIGINT, SIGTERM};
     let Ok(mut signals) = signal_hook::iterator::Signals::new([SIGINT, SIGTERM]) else {
@@ -44,6 +56,7 @@ fn on_signals() {
     };
     std::thread::spawn(move || {
         if let Some(sig) = signals.forever().next() {
+            STOPPING.store(true, std::sync::atomic::Ordering::SeqCst);
             let removed = weir::job::outdir::discard_partials();
             let what = if sig == SIGINT {
                 "interrupted"
@@ -71,7 +84,9 @@ pub fn main() -> ExitCode {
             return ExitCode::from(code);
         }
     };
-    match dispatch(cli.command) {
+    let result = dispatch(cli.command);
+    yield_to_signal();
+    match result {
         Ok(Outcome::Ok) => ExitCode::SUCCESS,
         Ok(Outcome::Mismatch) => ExitCode::from(1),
         Err(e) => {

@@ -12,6 +12,12 @@ use super::Outcome;
 /// The demo's job, built in so the demo runs from any directory.
 pub const DEMO_JOB: &str = include_str!("../../data/jobs/demo.toml");
 
+/// The demo's join, built in likewise.
+pub const DEMO_JOIN_JOB: &str = include_str!("../../data/jobs/demo-join.toml");
+
+/// On-chip bytes per engine of the demo's second join: too few for the whole registry.
+const DEMO_BLOCKED_ONCHIP: u64 = 512;
+
 fn parse_seeds(s: &str) -> Result<std::ops::Range<u64>> {
     let bad = || Error::input(format!("--seeds `{s}`: expected A..B, for example 1..9"));
     let (a, b) = s.split_once("..").ok_or_else(bad)?;
@@ -113,6 +119,24 @@ pub fn demo(a: DemoArgs) -> Result<Outcome> {
     let spec = JobSpec::from_toml(DEMO_JOB, Path::new("data/jobs/demo.toml"))?;
     say!("weir demo: {}", spec.name);
     execute(&spec, Path::new("."), &a.out, a.force, None, &[])?;
+    let mut join = JobSpec::from_toml(DEMO_JOIN_JOB, Path::new("data/jobs/demo-join.toml"))?;
+    say!("\nweir demo: {}, the registry on chip", join.name);
+    execute(&join, Path::new("."), &a.out.join("join"), false, None, &[])?;
+    if let weir::kernels::KernelConfig::Join(k) = &mut join.kernel {
+        k.onchip_bytes = DEMO_BLOCKED_ONCHIP;
+    }
+    say!(
+        "\nweir demo: {}, {DEMO_BLOCKED_ONCHIP} bytes on chip, so the registry is built in blocks",
+        join.name
+    );
+    execute(
+        &join,
+        Path::new("."),
+        &a.out.join("join-blocked"),
+        false,
+        None,
+        &[],
+    )?;
     let plan = super::args::PlanArgs {
         run_dir: a.out.clone(),
         sweep: Vec::new(),

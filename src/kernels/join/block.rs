@@ -80,7 +80,7 @@ fn check_type(ty: ElemType, what: &str) -> Result<(), JoinError> {
     match ty {
         ElemType::U32 | ElemType::U64 => Ok(()),
         t => Err(JoinError::Shape(format!(
-            "{what} type {t}: join keys and payloads are u32 or u64"
+            "{what} type {t}: the join computes with u32 or u64 (narrower columns are widened to u32)"
         ))),
     }
 }

@@ -31,31 +31,56 @@ const SUB_ROWS: usize = 1 << 10;
 /// Output bytes after which a chunk hands its records to the sink before going on.
 const OUT_LIMIT: usize = 8 << 20;
 
-/// A key or payload column, borrowed.
+/// A key or payload column, borrowed. `u8` and `u16` columns are widened to 32 bits:
+/// the hash, the table's slots and the records see a `u32`, while the ledger counts the
+/// column's own bytes.
 #[derive(Clone, Copy)]
 pub(crate) enum Col<'a> {
+    U8(&'a [u8]),
+    U16(&'a [u16]),
     U32(&'a [u32]),
     U64(&'a [u64]),
 }
 
-impl Col<'_> {
+impl<'a> Col<'a> {
     #[inline(always)]
     pub(crate) fn get(&self, i: usize) -> u64 {
         match self {
+            Col::U8(v) => u64::from(v[i]),
+            Col::U16(v) => u64::from(v[i]),
             Col::U32(v) => u64::from(v[i]),
             Col::U64(v) => v[i],
         }
     }
+    pub(crate) fn len(&self) -> usize {
+        match self {
+            Col::U8(v) => v.len(),
+            Col::U16(v) => v.len(),
+            Col::U32(v) => v.len(),
+            Col::U64(v) => v.len(),
+        }
+    }
+    fn slice(&self, r: std::ops::Range<usize>) -> Col<'a> {
+        match *self {
+            Col::U8(v) => Col::U8(&v[r]),
+            Col::U16(v) => Col::U16(&v[r]),
+            Col::U32(v) => Col::U32(&v[r]),
+            Col::U64(v) => Col::U64(&v[r]),
+        }
+    }
     fn bytes(&self) -> u64 {
         match self {
+            Col::U8(_) => 1,
+            Col::U16(_) => 2,
             Col::U32(_) => 4,
             Col::U64(_) => 8,
         }
     }
+    /// The type the join computes with: `u64`, or `u32` for narrower columns.
     fn ty(&self) -> ElemType {
         match self {
-            Col::U32(_) => ElemType::U32,
             Col::U64(_) => ElemType::U64,
+            _ => ElemType::U32,
         }
     }
 }
@@ -75,6 +100,8 @@ fn col<'a>(t: &'a Table, name: &str, side: &'static str) -> Result<Col<'a>, Join
         column: name.to_string(),
     })?;
     match &c.data {
+        ColumnData::U8(v) if c.ty == ElemType::U8 => Ok(Col::U8(v)),
+        ColumnData::U16(v) => Ok(Col::U16(v)),
         ColumnData::U32(v) if c.ty == ElemType::U32 => Ok(Col::U32(v)),
         ColumnData::U64(v) => Ok(Col::U64(v)),
         _ => Err(JoinError::BadType {
@@ -216,10 +243,7 @@ pub(crate) fn drive<T: BlockTable>(
     let mut ledger = Ledger::new();
     let mut out = Cursor::new(io.out_base, wb);
     let (mut records, mut matches) = (0u64, 0u64);
-    let l_rows = match cols.pkey {
-        Col::U32(v) => v.len(),
-        Col::U64(v) => v.len(),
-    };
+    let l_rows = cols.pkey.len();
     let chunks = l_rows.div_ceil(CHUNK_ROWS);
     let wave = rayon::current_num_threads() * 4;
     let mut outs: Vec<ChunkOut> = (0..wave.min(chunks)).map(|_| ChunkOut::default()).collect();
@@ -471,10 +495,7 @@ fn probe_rows<T: BlockTable>(
     buf: &mut Vec<u8>,
     onchip: &mut Traffic,
 ) -> (u64, u64) {
-    let keys = match cols.pkey {
-        Col::U32(v) => Col::U32(&v[rows.clone()]),
-        Col::U64(v) => Col::U64(&v[rows.clone()]),
-    };
+    let keys = cols.pkey.slice(rows.clone());
     let (mut records, mut matches) = (0u64, 0u64);
     let base = rows.start;
     let seen_off = base - chunk_start;

@@ -16,7 +16,7 @@ pub enum JoinError {
         column: String,
     },
     /// A key or payload column has a type the join does not take.
-    #[error("{side} column `{column}` is {ty}; join keys and payloads are u32 or u64")]
+    #[error("{side} column `{column}` is {ty}; join keys and payloads are u8, u16, u32 or u64")]
     BadType {
         /// `build` or `probe`.
         side: &'static str,

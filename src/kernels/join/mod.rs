@@ -61,10 +61,7 @@ pub struct JoinEngineResult {
 impl BlockTable for MirrorTable {
     #[inline]
     fn probe_rows(&self, keys: Col<'_>, onchip: &mut Traffic, mut hit: impl FnMut(usize, u64)) {
-        let n = match keys {
-            Col::U32(v) => v.len(),
-            Col::U64(v) => v.len(),
-        };
+        let n = keys.len();
         // Bucket reads prefetched a few rows ahead, as the fast table does: the golden
         // join should never be the slow step.
         const AHEAD: usize = 8;
@@ -84,6 +81,8 @@ impl BlockTable for FastTable {
     #[inline]
     fn probe_rows(&self, keys: Col<'_>, _onchip: &mut Traffic, hit: impl FnMut(usize, u64)) {
         match keys {
+            Col::U8(v) => self.probe_all(v, hit),
+            Col::U16(v) => self.probe_all(v, hit),
             Col::U32(v) => self.probe_all(v, hit),
             Col::U64(v) => self.probe_all(v, hit),
         }

@@ -16,7 +16,7 @@ use serde::{Deserialize, Serialize};
 use super::BucketPick;
 use super::{
     check_fields, join_engine, plan_blocks, Buckets, HashFn, JoinIo, JoinParams, OutField,
-    Overflow, Variant,
+    Overflow, RecordWriter, Variant,
 };
 use crate::error::{Error, Result};
 use crate::kernels::seam::{
@@ -119,6 +119,14 @@ pub struct JoinKernel {
     params: JoinParams,
 }
 
+/// The type the join computes with: narrower unsigned columns are widened to `u32`.
+fn widened(t: ElemType) -> ElemType {
+    match t {
+        ElemType::U64 => ElemType::U64,
+        _ => ElemType::U32,
+    }
+}
+
 fn column(t: &TableSchema, key: &str, name: &str) -> Result<(usize, ElemType)> {
     t.columns
         .iter()
@@ -154,25 +162,28 @@ impl JoinConfig {
         let (_, bp) = column(&build, "build_payload", &self.build_payload)?;
         let (_, lk) = column(&probe, "probe_key", &self.probe_key)?;
         let (_, lp) = column(&probe, "probe_payload", &self.probe_payload)?;
-        if bk != lk {
-            return Err(Error::input(format!(
-                "kernel: build key `{}` is {bk} but probe key `{}` is {lk}; join keys must have one type",
-                self.build_key, self.probe_key
-            )));
-        }
         for (k, t) in [
             ("build_key", bk),
             ("build_payload", bp),
             ("probe_key", lk),
             ("probe_payload", lp),
         ] {
-            if !matches!(t, ElemType::U32 | ElemType::U64) {
+            if !matches!(
+                t,
+                ElemType::U8 | ElemType::U16 | ElemType::U32 | ElemType::U64
+            ) {
                 return Err(Error::input(format!(
-                    "kernel.{k}: the join takes u32 or u64 columns, not {t}"
+                    "kernel.{k}: the join takes u8, u16, u32 or u64 columns, not {t}"
                 )));
             }
         }
-        let mut p = JoinParams::new(bk, bp);
+        if widened(bk) != widened(lk) {
+            return Err(Error::input(format!(
+                "kernel: build key `{}` is {bk} but probe key `{}` is {lk}; join keys must both be u64 or both at most 32 bits",
+                self.build_key, self.probe_key
+            )));
+        }
+        let mut p = JoinParams::new(widened(bk), widened(bp));
         p.hash = HashFn::parse(&self.hash).ok_or_else(|| {
             Error::input(format!(
                 "kernel.hash: `{}` (expected fibonacci, murmur, crc32c or identity)",
@@ -257,33 +268,21 @@ impl JoinConfig {
 }
 
 impl JoinKernel {
+    /// The record layout, from the writer that packs the records.
     fn record_fields(&self) -> Vec<Field> {
-        let ty = |f: OutField| match f {
-            OutField::ProbeRowId => ElemType::U64,
-            OutField::Key => self.params.key_type,
-            OutField::BuildPayload => self.params.build_payload_type,
-            OutField::ProbePayload => self
-                .probe
-                .columns
-                .iter()
-                .find(|(n, _)| *n == self.params.probe_payload)
-                .map_or(ElemType::U64, |c| c.1),
-        };
-        let list = match &self.params.variant {
-            Variant::Inner(f) => f.clone(),
-            Variant::Semi => vec![OutField::ProbeRowId],
-            Variant::Count => {
-                return vec![Field {
-                    name: "pairs".into(),
-                    ty: ElemType::U64,
-                }]
-            }
-        };
-        list.into_iter()
-            .map(|f| Field {
-                name: f.name().into(),
-                ty: ty(f),
-            })
+        let pay = self
+            .probe
+            .columns
+            .iter()
+            .find(|(n, _)| *n == self.params.probe_payload)
+            .map_or(ElemType::U64, |c| widened(c.1));
+        let p = &self.params;
+        // Bound parameters always make a writer (the fields were checked at bind time).
+        RecordWriter::new(&p.variant, p.key_type, pay, p.build_payload_type)
+            .map(|w| w.layout().clone())
+            .unwrap_or_default()
+            .into_iter()
+            .map(|(name, ty)| Field { name, ty })
             .collect()
     }
 
