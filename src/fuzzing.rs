@@ -160,6 +160,7 @@ fn options(pick: u8) -> CheckOptions {
     CheckOptions {
         unordered: pick & 1 != 0,
         strict: pick & 2 != 0,
+        tolerance: (pick & 4 != 0).then_some(crate::check::Tolerance::Ulps(u64::from(pick >> 3))),
         outputs: Vec::new(),
     }
 }

@@ -195,6 +195,7 @@ pub fn check(golden: &Path, device: &Path, opts: &CheckOptions) -> Result<CheckR
         matched: checked().count() > 0 && checked().all(|c| c.verdict == Verdict::Match),
         unordered: opts.unordered,
         strict: opts.strict,
+        tolerance: opts.tolerance,
         outputs: checks,
     })
 }
@@ -261,7 +262,7 @@ fn check_one(
     if unordered {
         unordered_into(&mut out, &shape, &gold, &dump);
     } else {
-        let r = ordered(&shape, &gold, &dump);
+        let r = ordered(&shape, &gold, &dump, opts.tolerance);
         out.differing = r.differing;
         out.first_mismatches = r.first;
     }

@@ -8,6 +8,7 @@
 //! ```
 
 use super::shape::{hex, Shape};
+use super::tolerance::{float_width, Tolerance};
 use super::{Mismatch, FIRST_MISMATCHES};
 use crate::image::{WordDump, WordState};
 
@@ -70,8 +71,9 @@ pub fn mismatch(shape: &Shape, r: u64, off: u64, expected: String, found: String
     }
 }
 
-/// Compares every record of `gold` with `dump` in order.
-pub fn ordered(shape: &Shape, gold: &[u8], dump: &WordDump) -> Ordered {
+/// Compares every record of `gold` with `dump` in order; float records within `tol` of
+/// their golden value agree (others stay exact).
+pub fn ordered(shape: &Shape, gold: &[u8], dump: &WordDump, tol: Option<Tolerance>) -> Ordered {
     let mut out = Ordered::default();
     let mut note = |m: Mismatch| {
         out.differing += 1;
@@ -95,8 +97,15 @@ pub fn ordered(shape: &Shape, gold: &[u8], dump: &WordDump) -> Ordered {
     for r in 0..shape.records {
         let off = r * rec;
         let want = &gold[off as usize..(off + rec) as usize];
+        let float = tol.zip(float_width(shape));
         match bytes_at(dump, off, rec) {
             Ok(got) if got == want => {}
+            Ok(got) if float.is_some() => {
+                let (t, w) = float.expect("checked");
+                if let Some((e, f)) = t.differences(shape, w, want, got) {
+                    note(mismatch(shape, r, off, e, f));
+                }
+            }
             got => {
                 let found = got.map_or_else(|g| g.text().into(), |b| shape.render(b));
                 note(mismatch(shape, r, off, shape.render(want), found));

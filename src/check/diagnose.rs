@@ -79,7 +79,7 @@ pub fn diagnose(s: &Shape, c: &Context<'_>) -> Option<Diagnosis> {
 
 /// A verdict on `dump` as a whole: "all N records match" or "k of N records differ".
 fn verdict(s: &Shape, gold: &[u8], dump: &WordDump) -> String {
-    let o = ordered(s, gold, dump);
+    let o = ordered(s, gold, dump, None);
     if o.differing == 0 {
         format!("all {} records match", s.records)
     } else {
@@ -126,7 +126,7 @@ fn width(s: &Shape, c: &Context<'_>) -> Option<Diagnosis> {
             state: vec![WordState::Written; data.len() / wb],
             data,
         };
-        (ordered(s, c.gold, &repacked).differing == 0).then(|| Diagnosis {
+        (ordered(s, c.gold, &repacked, None).differing == 0).then(|| Diagnosis {
             class: "width",
             line: format!(
                 "the dump's lines are {} bits wide, not {}: every line fits in {} bits, and read as {}-bit words all {} records match",
@@ -155,7 +155,7 @@ fn truncated(s: &Shape, c: &Context<'_>) -> Option<Diagnosis> {
         records: whole.min(s.records),
         ..s.clone()
     };
-    if ordered(&head, c.gold, d).differing != 0 {
+    if ordered(&head, c.gold, d, None).differing != 0 {
         return None;
     }
     let lost = s.words - t;

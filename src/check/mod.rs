@@ -24,11 +24,13 @@ mod diagnose;
 mod dump;
 mod shape;
 mod text;
+pub mod tolerance;
 pub mod unordered;
 
 use serde::Serialize;
 
 pub use aim::check;
+pub use tolerance::Tolerance;
 
 /// How many mismatches a report lists per output.
 pub const FIRST_MISMATCHES: usize = 10;
@@ -108,7 +110,7 @@ pub struct OutputCheck {
 }
 
 /// The whole report.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct CheckReport {
     /// True when at least one output was checked and every checked output matches.
     pub matched: bool,
@@ -116,6 +118,8 @@ pub struct CheckReport {
     pub unordered: bool,
     /// Whether trailing data counts as a mismatch.
     pub strict: bool,
+    /// The tolerance float outputs were compared with (`None`: exact).
+    pub tolerance: Option<Tolerance>,
     /// One entry per golden output considered.
     pub outputs: Vec<OutputCheck>,
 }
@@ -127,6 +131,8 @@ pub struct CheckOptions {
     pub unordered: bool,
     /// Trailing data after the last record is a mismatch, not a note.
     pub strict: bool,
+    /// Float outputs agree within this tolerance (others are always exact).
+    pub tolerance: Option<Tolerance>,
     /// Golden outputs to check (stems); empty means every output the device side holds.
     /// With one dump file, exactly one names the output the file holds.
     pub outputs: Vec<String>,

@@ -13,6 +13,8 @@ pub struct FieldSpan {
     pub bit: u32,
     /// Width in bits.
     pub bits: u32,
+    /// Element type name (`u32`, `f32`, …).
+    pub elem: String,
 }
 
 /// One golden output's layout.
@@ -83,6 +85,7 @@ impl Shape {
                     name: f.name.clone(),
                     bit,
                     bits: f.bits,
+                    elem: f.elem.clone(),
                 };
                 bit += f.bits;
                 span
@@ -185,11 +188,13 @@ mod tests {
                 name: "ts".into(),
                 bit: 0,
                 bits: 32,
+                elem: "u32".into(),
             },
             FieldSpan {
                 name: "power".into(),
                 bit: 32,
                 bits: 16,
+                elem: "u16".into(),
             },
         ];
         assert_eq!(s.render(&b), "ts=0x0008fef6 power=0x1234");

@@ -1,7 +1,7 @@
 //! The report as terminal text: a summary table of every output, then the details of
 //! each failing or noted output (file read, diagnosis, first differences, notes).
 
-use super::{CheckReport, Mismatch, OutputCheck, Verdict};
+use super::{CheckReport, Mismatch, OutputCheck, Tolerance, Verdict};
 use crate::tables::TextTable;
 
 fn verdict(o: &OutputCheck) -> String {
@@ -111,6 +111,15 @@ impl CheckReport {
             ]);
         }
         let mut s = t.render();
+        match self.tolerance {
+            Some(Tolerance::Ulps(n)) => {
+                s.push_str(&format!("float outputs compared within {n} ulps\n"))
+            }
+            Some(Tolerance::Near { abs, rel }) => s.push_str(&format!(
+                "float outputs compared within {abs:e} + {rel:e}·|golden|\n"
+            )),
+            None => {}
+        }
         for o in &self.outputs {
             let noted = o.verdict == Verdict::Mismatch || !o.notes.is_empty();
             if noted {

@@ -81,6 +81,15 @@ pub struct CheckArgs {
     /// last row) is a mismatch, not a note.
     #[arg(long)]
     pub strict: bool,
+    /// Float outputs (f32/f64 models, losses) agree within N units in the last place.
+    #[arg(long, value_name = "N", conflicts_with_all = ["abs", "rel"])]
+    pub ulps: Option<u64>,
+    /// Float outputs agree within this absolute difference (plus --rel of the golden value).
+    #[arg(long, value_name = "X")]
+    pub abs: Option<f64>,
+    /// Float outputs agree within this fraction of the golden value's magnitude (plus --abs).
+    #[arg(long, value_name = "X")]
+    pub rel: Option<f64>,
     /// Print the report as JSON.
     #[arg(long)]
     pub json: bool,

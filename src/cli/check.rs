@@ -1,9 +1,9 @@
 //! `weir inspect` and `weir check`.
 
-use weir::check::{self, CheckOptions};
+use weir::check::{self, CheckOptions, Tolerance};
 use weir::manifest::Manifest;
 use weir::tables::{human_bytes, TextTable};
-use weir::Result;
+use weir::{Error, Result};
 
 use super::args::{CheckArgs, InspectArgs};
 use super::Outcome;
@@ -56,14 +56,35 @@ pub fn inspect(a: InspectArgs) -> Result<Outcome> {
     }
 }
 
+/// The float tolerance the flags ask for.
+fn tolerance(a: &CheckArgs) -> Result<Option<Tolerance>> {
+    if let Some(n) = a.ulps {
+        return Ok(Some(Tolerance::Ulps(n)));
+    }
+    if a.abs.is_none() && a.rel.is_none() {
+        return Ok(None);
+    }
+    let (abs, rel) = (a.abs.unwrap_or(0.0), a.rel.unwrap_or(0.0));
+    for (flag, v) in [("--abs", abs), ("--rel", rel)] {
+        if !(v.is_finite() && v >= 0.0) {
+            return Err(Error::input(format!(
+                "{flag} {v}: must be a finite number of at least 0"
+            )));
+        }
+    }
+    Ok(Some(Tolerance::Near { abs, rel }))
+}
+
 /// `weir check`.
 pub fn check(a: CheckArgs) -> Result<Outcome> {
+    let tolerance = tolerance(&a)?;
     let report = check::check(
         &a.golden,
         &a.device,
         &CheckOptions {
             unordered: a.unordered,
             strict: a.strict,
+            tolerance,
             outputs: a.outputs,
         },
     )?;

@@ -24,6 +24,14 @@ pub enum Shape {
         /// Number of turbines.
         turbines: u32,
     },
+    /// Training samples `x0 … x{d−1}, y` from a seeded linear model (see [`sgd`]), in
+    /// `f32` or, with `q`, fixed point.
+    Samples {
+        /// The model and noise.
+        gen: sgd::SgdGen,
+        /// Fixed-point format of every column.
+        q: Option<crate::table::QFormat>,
+    },
 }
 
 /// A seeded table generator.
@@ -48,6 +56,7 @@ impl TableGen {
                 .iter()
                 .map(|(n, t)| (n.to_string(), *t))
                 .collect(),
+            Shape::Samples { gen, q } => gen.schema(*q),
         }
     }
 
@@ -65,6 +74,7 @@ impl TableGen {
             Shape::Telemetry { turbines } => {
                 telemetry::generate(self.seed, &self.table, *turbines, rows)
             }
+            Shape::Samples { gen, q } => gen.table(&self.table, rows, *q),
         }
     }
 }

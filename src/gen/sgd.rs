@@ -12,7 +12,8 @@ use ndarray::{Array1, Array2};
 use rayon::prelude::*;
 
 use super::rng::{Stream, BLOCK_ROWS};
-use crate::kernels::sgd::SgdData;
+use crate::kernels::sgd::{fixed, SgdData};
+use crate::table::{Column, ColumnData, ElemType, QFormat, Table};
 
 /// How labels are drawn.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -84,6 +85,87 @@ impl SgdGen {
             weights: w,
             bias: self.bias,
         }
+    }
+
+    /// Rows `rows` as a table of columns `x0 … x{d−1}` and `y`: `f32`, or, with `q`, signed
+    /// integers of that Q format (nearest-even with saturation, as the fixed-point trainer
+    /// enters data), stored in the smallest of 8, 16 or 32 bits. The values of a row do not
+    /// depend on the range asked for.
+    pub fn table(&self, name: &str, rows: std::ops::Range<u64>, q: Option<QFormat>) -> Table {
+        let w = self.weights();
+        let d = self.dims;
+        let blocks: Vec<(Vec<f32>, Vec<f32>)> = (rows.start / BLOCK_ROWS
+            ..rows.end.div_ceil(BLOCK_ROWS))
+            .into_par_iter()
+            .map(|b| self.block(b, &w))
+            .collect();
+        let first = (rows.start / BLOCK_ROWS * BLOCK_ROWS) as usize;
+        let (lo, hi) = (rows.start as usize - first, rows.end as usize - first);
+        let cell = |j: usize, r: usize| -> f32 {
+            let (bx, by) = &blocks[r / BLOCK_ROWS as usize];
+            let i = r % BLOCK_ROWS as usize;
+            if j < d {
+                bx[i * d + j]
+            } else {
+                by[i]
+            }
+        };
+        let columns = (0..=d)
+            .map(|j| {
+                let name = if j < d { format!("x{j}") } else { "y".into() };
+                let vals = (lo..hi).map(|r| cell(j, r));
+                let col = match q {
+                    None => Column::new(&name, ElemType::F32, ColumnData::F32(vals.collect())),
+                    Some(q) => {
+                        let (bits, mut over) = (fixed::width(q), 0);
+                        let ints = vals
+                            .map(|v| fixed::from_real(f64::from(v), q.frac_bits, bits, &mut over));
+                        let (ty, data) = match fixed::storage_bits(q) {
+                            8 => (
+                                ElemType::I8,
+                                ColumnData::I8(ints.map(|v| v as i8).collect()),
+                            ),
+                            16 => (
+                                ElemType::I16,
+                                ColumnData::I16(ints.map(|v| v as i16).collect()),
+                            ),
+                            _ => (
+                                ElemType::I32,
+                                ColumnData::I32(ints.map(|v| v as i32).collect()),
+                            ),
+                        };
+                        Column::new(&name, ty, data).map(|mut c| {
+                            c.q = Some(q);
+                            c
+                        })
+                    }
+                };
+                col.expect("generated columns match their types")
+            })
+            .collect();
+        Table::new(name, columns).expect("generated columns have equal length")
+    }
+
+    /// Column names and types of [`SgdGen::table`].
+    pub fn schema(&self, q: Option<QFormat>) -> Vec<(String, ElemType)> {
+        let ty = match q.map(fixed::storage_bits) {
+            None => ElemType::F32,
+            Some(8) => ElemType::I8,
+            Some(16) => ElemType::I16,
+            Some(_) => ElemType::I32,
+        };
+        (0..=self.dims)
+            .map(|j| {
+                (
+                    if j < self.dims {
+                        format!("x{j}")
+                    } else {
+                        "y".into()
+                    },
+                    ty,
+                )
+            })
+            .collect()
     }
 
     fn block(&self, b: u64, w: &[f64]) -> (Vec<f32>, Vec<f32>) {

@@ -92,6 +92,20 @@ pub fn check(spec: &JobSpec) -> Result<()> {
             0,
             MAX_COLUMNS as u64,
         )?;
+        if let Some(s) = &t.samples {
+            within(
+                &format!("table `{name}`: samples.features"),
+                s.features.into(),
+                1,
+                MAX_COLUMNS as u64 - 1,
+            )?;
+            within(
+                &format!("table `{name}`: samples.scale (entries)"),
+                s.scale.len() as u64,
+                1,
+                MAX_LIST as u64,
+            )?;
+        }
         if let Some(n) = t.turbines {
             within(&format!("table `{name}`: turbines"), n.into(), 1, 1 << 20)?;
         }

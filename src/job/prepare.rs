@@ -7,6 +7,7 @@ use std::path::Path;
 use std::sync::Arc;
 
 use crate::error::{Error, Result};
+use crate::gen::sgd::{Labels, SgdGen};
 use crate::gen::{ColumnGen, Dist, Shape, Skew, TableGen};
 use crate::image::ImageFormat;
 use crate::job::spec::{ColumnSpec, InputSpec, JobSpec, LayoutSpec, PlacementSpec, DEFAULT_TABLE};
@@ -209,16 +210,17 @@ pub fn prepare(spec: &JobSpec, job_dir: &Path) -> Result<Prepared> {
     for (name, t) in spec.table_specs()? {
         check_identifier("table", &name)?;
         let loaded = load_files(t, &name, job_dir)?;
-        let schema = table_schema(t, loaded.as_ref());
+        let schema = table_schema(t, loaded.as_ref())?;
         let rows = match &loaded {
             Some(t) => t.rows() as u64,
             None => t.rows.unwrap_or(0),
         };
-        found.push((name, loaded, schema, rows));
+        let q = q_formats(t, &schema, loaded.as_ref())?;
+        found.push((name, loaded, schema, rows, q));
     }
     let names: Vec<&str> = found.iter().map(|f| f.0.as_str()).collect();
     check_unique("table", &names)?;
-    for (name, _, schema, _) in &found {
+    for (name, _, schema, ..) in &found {
         let cols: Vec<&str> = schema.iter().map(|(n, _)| n.as_str()).collect();
         for (c, ty) in schema {
             check_identifier(&format!("table `{name}`: column"), c)?;
@@ -233,10 +235,11 @@ pub fn prepare(spec: &JobSpec, job_dir: &Path) -> Result<Prepared> {
     }
     let schemas: Vec<TableSchema> = found
         .iter()
-        .map(|(name, _, columns, rows)| TableSchema {
+        .map(|(name, _, columns, rows, q)| TableSchema {
             name: name.clone(),
             columns: columns.clone(),
             rows: *rows,
+            q: q.clone(),
         })
         .collect();
     let kernel = spec.kernel.bind(&schemas)?;
@@ -265,7 +268,7 @@ pub fn prepare(spec: &JobSpec, job_dir: &Path) -> Result<Prepared> {
                 &kernel.select_ranges(&name),
             )?),
         };
-        let q = q_formats(input, &schema, &source)?;
+        let q = found[k].4.clone();
         let whole = (u.share == Share::Replicated).then(|| source.rows_of(0..source.rows()));
         tables.push(InputTable {
             name,
@@ -303,27 +306,82 @@ fn image_formats(names: &[String]) -> Result<Vec<ImageFormat>> {
         .collect()
 }
 
-/// The schema of a table: its files', the telemetry generator's, or the listed columns.
-fn table_schema(input: &InputSpec, loaded: Option<&Table>) -> Vec<(String, ElemType)> {
-    match (loaded, input.generator.as_deref()) {
+/// The schema of a table: its files', the telemetry or samples generator's, or the listed
+/// columns.
+fn table_schema(input: &InputSpec, loaded: Option<&Table>) -> Result<Vec<(String, ElemType)>> {
+    Ok(match (loaded, input.generator.as_deref()) {
         (Some(t), _) => t.schema(),
         (None, Some("telemetry")) => crate::gen::telemetry::SCHEMA
             .iter()
             .map(|(n, t)| (n.to_string(), *t))
             .collect(),
+        (None, Some("samples")) => {
+            let (g, q) = samples_gen(input)?;
+            g.schema(q)
+        }
         (None, _) => input
             .columns
             .iter()
             .map(|c| (c.name.clone(), c.ty))
             .collect(),
-    }
+    })
 }
 
-/// The fixed-point format of each schema column: the job's `q`, else a CSV header's.
+/// The `samples` generator of `input` and its columns' Q format.
+fn samples_gen(input: &InputSpec) -> Result<(SgdGen, Option<QFormat>)> {
+    let s = input
+        .samples
+        .as_ref()
+        .ok_or_else(|| Error::input("input: generator = \"samples\" needs a samples table"))?;
+    let labels = match s.labels.as_str() {
+        "regression" => Labels::Regression,
+        "logistic" => Labels::Logistic,
+        "margin" => Labels::Margin,
+        o => {
+            return Err(Error::input(format!(
+                "samples.labels: `{o}` (expected regression, logistic or margin)"
+            )))
+        }
+    };
+    let finite = |v: f64| v.is_finite() && v.abs() <= 1e30;
+    if !finite(s.noise) || s.noise < 0.0 || !finite(s.bias) || !s.scale.iter().all(|&v| finite(v)) {
+        return Err(Error::input(
+            "samples: noise (non-negative), bias and scale must be finite numbers of at most 1e30",
+        ));
+    }
+    let q = match &s.q {
+        None => None,
+        Some(text) => {
+            let q = table::parse_q(text).map_err(|e| Error::input(format!("samples.q: {e}")))?;
+            if crate::kernels::sgd::fixed::width(q) > MAX_SAMPLE_BITS {
+                return Err(Error::input(format!(
+                    "samples.q = {text}: at most {MAX_SAMPLE_BITS} bits with the sign, so every value is exact in the f32 the trainer reads"
+                )));
+            }
+            Some(q)
+        }
+    };
+    let gen = SgdGen {
+        rows: input.rows.unwrap_or(0),
+        dims: s.features as usize,
+        seed: input.seed,
+        scale: s.scale.clone(),
+        noise: s.noise,
+        bias: s.bias,
+        labels,
+    };
+    Ok((gen, q))
+}
+
+/// Widest fixed-point sample (with the sign): values stay exact through `f32`.
+const MAX_SAMPLE_BITS: u32 = 24;
+
+/// The fixed-point format of each schema column: the job's `q`, else a CSV header's or the
+/// samples generator's.
 fn q_formats(
     input: &InputSpec,
     schema: &[(String, ElemType)],
-    source: &Source,
+    loaded: Option<&Table>,
 ) -> Result<Vec<Option<QFormat>>> {
     schema
         .iter()
@@ -331,9 +389,10 @@ fn q_formats(
         .map(|(i, (name, ty))| {
             let given = input.columns.iter().find(|c| &c.name == name);
             let Some(text) = given.and_then(|c| c.q.as_deref()) else {
-                return Ok(match source {
-                    Source::Loaded(t) => t.columns[i].q,
-                    Source::Gen(_) => None,
+                return Ok(match loaded {
+                    Some(t) => t.columns[i].q,
+                    None if input.generator.as_deref() == Some("samples") => samples_gen(input)?.1,
+                    None => None,
                 });
             };
             let err = |m: String| Error::input(format!("input.columns `{name}`: {m}"));
@@ -553,10 +612,19 @@ fn build_gen(
                 shape: Shape::Telemetry { turbines },
             });
         }
+        Some("samples") => {
+            let (gen, q) = samples_gen(input)?;
+            return Ok(TableGen {
+                table,
+                rows,
+                seed: input.seed,
+                shape: Shape::Samples { gen, q },
+            });
+        }
         None | Some("columns") => {}
         Some(g) => {
             return Err(Error::input(format!(
-                "input.generator: unknown generator `{g}` (expected columns or telemetry)"
+                "input.generator: unknown generator `{g}` (expected columns, telemetry or samples)"
             )))
         }
     }

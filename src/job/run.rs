@@ -189,6 +189,7 @@ fn run_engine(prep: &Prepared, e: usize, rows: &[Option<Table>]) -> Result<Engin
         .collect();
     let ctx = EngineCtx {
         engine: e as u32,
+        engines: prep.engines.len() as u32,
         channel: plan.channel,
         word_bytes: prep.map.word_bytes(),
         tables,

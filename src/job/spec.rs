@@ -51,18 +51,55 @@ pub struct InputSpec {
     /// Generator seed.
     #[serde(default = "default_seed")]
     pub seed: u64,
-    /// `columns` (each column has a `dist`) or `telemetry` (the demo's readings table).
+    /// `columns` (each column has a `dist`), `telemetry` (the demo's readings table) or
+    /// `samples` (training samples from a linear model, described by `[….samples]`).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub generator: Option<String>,
     /// Turbines, for the `telemetry` generator.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub turbines: Option<u32>,
+    /// The linear model of the `samples` generator.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub samples: Option<SamplesSpec>,
     /// A CSV file holding the whole table (relative to the job file).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub csv: Option<PathBuf>,
     /// The columns.
     #[serde(default)]
     pub columns: Vec<ColumnSpec>,
+}
+
+/// The `samples` generator: `features` standard-normal features (feature j scaled by
+/// `scale[j mod len]`), true weights drawn from N(0, 1), and the label `y` from the model.
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct SamplesSpec {
+    /// Features d.
+    pub features: u32,
+    /// `regression` (y = w·x + b + ε), `logistic` (y ∈ {0, 1}) or `margin` (y ∈ {−1, +1}).
+    #[serde(default = "regression")]
+    pub labels: String,
+    /// Standard deviation of ε.
+    #[serde(default)]
+    pub noise: f64,
+    /// True bias b.
+    #[serde(default)]
+    pub bias: f64,
+    /// Per-feature scales, repeated cyclically.
+    #[serde(default = "unit_scale")]
+    pub scale: Vec<f64>,
+    /// Store every column in this signed fixed-point format (`Qi.f`, at most 24 bits with
+    /// the sign) instead of `f32`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub q: Option<String>,
+}
+
+fn regression() -> String {
+    "regression".into()
+}
+
+fn unit_scale() -> Vec<f64> {
+    vec![1.0]
 }
 
 /// The table name of a one-table job that gives none.

@@ -43,6 +43,8 @@ pub enum KernelConfig {
     Scan(scan::ScanConfig),
     /// Blocked build/probe hash join.
     Join(join::JoinConfig),
+    /// Minibatch linear SGD.
+    Sgd(sgd::SgdConfig),
 }
 
 impl KernelConfig {
@@ -51,6 +53,7 @@ impl KernelConfig {
         Ok(match self {
             KernelConfig::Scan(c) => Arc::new(c.bind(tables)?),
             KernelConfig::Join(c) => Arc::new(c.bind(tables)?),
+            KernelConfig::Sgd(c) => Arc::new(c.bind(tables)?),
         })
     }
 }

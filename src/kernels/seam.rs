@@ -21,7 +21,7 @@
 use std::ops::Range;
 
 use crate::ledger::Ledger;
-use crate::table::{ElemType, Table};
+use crate::table::{ElemType, QFormat, Table};
 
 /// How the engines share an input table.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -50,6 +50,8 @@ pub struct TableSchema {
     pub columns: Vec<(String, ElemType)>,
     /// Rows in the table.
     pub rows: u64,
+    /// Fixed-point format of each column, in table order (`None` for plain numbers).
+    pub q: Vec<Option<QFormat>>,
 }
 
 /// How big a declared region is.
@@ -101,6 +103,8 @@ pub struct EngineTable<'a> {
 pub struct EngineCtx<'a> {
     /// Engine index.
     pub engine: u32,
+    /// Engines in the job (coupled engines, such as SGD's model averaging, need all).
+    pub engines: u32,
     /// The engine's channel (where its regions live).
     pub channel: u32,
     /// Bytes per memory word.

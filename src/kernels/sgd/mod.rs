@@ -22,6 +22,7 @@ pub mod lfsr;
 pub mod loss;
 pub mod naive;
 mod params;
+mod plan;
 pub mod real;
 pub mod tree;
 
@@ -32,6 +33,7 @@ pub use params::{
     validate, EngineMode, Hyper, Model, ModelElem, Numeric, Order, OverflowCounts, SgdData,
     SgdEngineResult, SgdError, SgdIo, SgdParams, Step,
 };
+pub use plan::{PerEngine, SgdConfig, SgdKernel};
 
 /// Ledger phase of epoch `e`.
 pub fn epoch_phase(e: u32) -> crate::ledger::Phase {

@@ -6,6 +6,7 @@ use ndarray::{Array1, Array2};
 
 use super::fixed::FixedSpec;
 use super::loss::Loss;
+use crate::kernels::predicate::Value;
 use crate::ledger::Ledger;
 use crate::table::{ColumnData, QFormat, Table};
 
@@ -29,30 +30,60 @@ impl SgdData {
         self.features.ncols()
     }
 
-    /// Builds the dataset from `f32` columns of `table`: `features` in order, then `label`.
-    pub fn from_table(table: &Table, features: &[&str], label: &str) -> Result<SgdData, SgdError> {
-        let col = |name: &str| -> Result<&Vec<f32>, SgdError> {
-            match table.column(name).map(|c| &c.data) {
-                Some(ColumnData::F32(v)) => Ok(v),
-                Some(_) => Err(SgdError::Column(format!("column `{name}` is not f32"))),
-                None => Err(SgdError::Column(format!(
-                    "no column `{name}` in table `{}`",
-                    table.name
-                ))),
-            }
-        };
+    /// Builds the dataset from columns `features` (by index, in order) and column `label`
+    /// of `table`: `f32` columns as they are, signed integer columns with a Q format in `q`
+    /// (by column index) as their exact value v/2^f, which must be exact in `f32`.
+    pub fn from_table(
+        table: &Table,
+        features: &[usize],
+        label: usize,
+        q: &[Option<QFormat>],
+    ) -> Result<SgdData, SgdError> {
         let n = table.rows();
-        let cols: Vec<&Vec<f32>> = features.iter().map(|f| col(f)).collect::<Result<_, _>>()?;
-        let mut x = Array2::<f32>::zeros((n, cols.len()));
-        for (j, c) in cols.iter().enumerate() {
-            x.column_mut(j)
-                .iter_mut()
-                .zip(c.iter())
-                .for_each(|(o, v)| *o = *v);
+        let read = |c: usize, out: &mut dyn FnMut(usize, f32)| -> Result<(), SgdError> {
+            let col = table.columns.get(c).ok_or_else(|| {
+                SgdError::Column(format!("no column {c} in table `{}`", table.name))
+            })?;
+            if let ColumnData::F32(v) = &col.data {
+                v.iter().enumerate().for_each(|(r, &x)| out(r, x));
+                return Ok(());
+            }
+            let f = q
+                .get(c)
+                .copied()
+                .flatten()
+                .filter(|_| col.ty.is_signed_int())
+                .ok_or_else(|| {
+                    SgdError::Column(format!(
+                        "column `{}` is {}: expected f32, or a signed integer with a Q format",
+                        col.name, col.ty
+                    ))
+                })?;
+            let scale = libm::exp2(-f64::from(f.frac_bits));
+            for r in 0..n {
+                let Value::I(i) = crate::kernels::value_at(col, r) else {
+                    unreachable!("signed integer columns hold signed values")
+                };
+                let x = i as f64 * scale;
+                if f64::from(x as f32) != x {
+                    return Err(SgdError::Column(format!(
+                        "column `{}`, row {r}: {x} is not exact in f32",
+                        col.name
+                    )));
+                }
+                out(r, x as f32);
+            }
+            Ok(())
+        };
+        let mut x = Array2::<f32>::zeros((n, features.len()));
+        for (j, &c) in features.iter().enumerate() {
+            read(c, &mut |r, v| x[[r, j]] = v)?;
         }
+        let mut y = Array1::<f32>::zeros(n);
+        read(label, &mut |r, v| y[r] = v)?;
         Ok(SgdData {
             features: x,
-            labels: Array1::from(col(label)?.clone()),
+            labels: y,
         })
     }
 }
