@@ -16,7 +16,13 @@ use super::fixed::{self, FixedTrainer};
 use super::params::*;
 use super::real::{self, FloatTrainer};
 use crate::gen::rng::Stream;
+use crate::kernels::isa::{Isa, Level};
 use crate::ledger::{words_touched, Cursor, Direction, Key, Ledger, Phase, Region, Traffic};
+
+/// How far ahead of the current sample its successors' rows are fetched, in bytes: far
+/// enough to hide memory latency behind a few samples' arithmetic (common practice for
+/// streaming loops; tuned on the bench).
+const PREFETCH_BYTES: u64 = 2048;
 
 /// Loss above this many times the zero model's loss (or 1, if larger) is divergence.
 pub const BLOW_UP: f64 = 1e6;
@@ -159,6 +165,95 @@ impl Reads {
     }
 }
 
+/// What a trainer does per sample and per minibatch (both trainers implement it, so a
+/// pass is compiled once per trainer with no dispatch per sample).
+trait Trains {
+    fn prefetch(&self, r: usize);
+    fn sample(&mut self, r: usize) -> f64;
+    fn update(&mut self, eta: f64, l2: f64, batch: usize);
+    fn model(&self) -> Model;
+}
+
+impl<T: real::Real, const FTZ: bool> Trains for FloatTrainer<'_, T, FTZ> {
+    #[inline(always)]
+    fn prefetch(&self, r: usize) {
+        FloatTrainer::prefetch(self, r)
+    }
+    #[inline(always)]
+    fn sample(&mut self, r: usize) -> f64 {
+        FloatTrainer::sample(self, r)
+    }
+    #[inline(always)]
+    fn update(&mut self, eta: f64, l2: f64, batch: usize) {
+        FloatTrainer::update(self, eta, l2, batch)
+    }
+    fn model(&self) -> Model {
+        FloatTrainer::model(self)
+    }
+}
+
+impl Trains for Box<FixedTrainer> {
+    #[inline(always)]
+    fn prefetch(&self, r: usize) {
+        FixedTrainer::prefetch(self, r)
+    }
+    #[inline(always)]
+    fn sample(&mut self, r: usize) -> f64 {
+        FixedTrainer::sample(self, r)
+    }
+    #[inline(always)]
+    fn update(&mut self, eta: f64, l2: f64, batch: usize) {
+        FixedTrainer::update(self, eta, l2, batch)
+    }
+    fn model(&self) -> Model {
+        FixedTrainer::model(self)
+    }
+}
+
+/// An epoch's running traffic counts.
+struct Counts {
+    reads: Reads,
+    model_r: Traffic,
+    model_w: Traffic,
+    /// One model's traffic.
+    model_t: Traffic,
+    samples: u64,
+}
+
+/// The samples of `share` through trainer `t`: per sample its prefetch, record read,
+/// gradient and loss; per minibatch one update and (among the first M) a snapshot.
+#[inline(always)]
+fn stream<S: Trains>(
+    t: &mut S,
+    plan: &Plan,
+    share: &[usize],
+    start: usize,
+    c: &mut Counts,
+    (hyper, updates, snapshots, loss_sum): (&Hyper, &mut u64, &mut Vec<Model>, &mut f64),
+) {
+    let p = plan.p;
+    let ahead = (PREFETCH_BYTES / plan.stride).max(1) as usize;
+    for (k, mb) in share.chunks(p.batch).enumerate() {
+        for (i, &r) in mb.iter().enumerate() {
+            if let Some(&next) = share.get(k * p.batch + i + ahead) {
+                t.prefetch(next);
+            }
+            c.reads.read((r - start) as u64);
+            let z = t.sample(r);
+            *loss_sum += p.loss.value(z, f64::from(plan.data.labels[r]));
+            c.model_r += c.model_t;
+        }
+        t.update(hyper.step.at(*updates), hyper.l2, mb.len());
+        c.model_r += c.model_t;
+        c.model_w += c.model_t;
+        *updates += 1;
+        c.samples += mb.len() as u64;
+        if snapshots.len() < p.snapshots {
+            snapshots.push(t.model());
+        }
+    }
+}
+
 /// One engine's state across epochs.
 struct Engine<'a> {
     index: u32,
@@ -185,6 +280,7 @@ struct Plan<'a> {
     payload: u64,
     stride: u64,
     model_bytes: u64,
+    isa: Isa,
 }
 
 impl Plan<'_> {
@@ -212,15 +308,18 @@ impl Engine<'_> {
         let p = plan.p;
         let (d, wb) = (plan.data.dims() as u64, self.io.word_bytes);
         let phase = Phase::nth("epoch", e);
-        let mut reads = Reads::new(self.io.data_base, plan.payload, plan.stride, wb);
-        let (mut model_r, mut model_w) = (Traffic::default(), Traffic::default());
-        let model_words = words_touched(self.io.model_base, plan.model_bytes, wb);
-        let model_t = Traffic {
-            bytes: plan.model_bytes,
-            words: model_words,
-            rows: 0,
+        let mut c = Counts {
+            reads: Reads::new(self.io.data_base, plan.payload, plan.stride, wb),
+            model_r: Traffic::default(),
+            model_w: Traffic::default(),
+            model_t: Traffic {
+                bytes: plan.model_bytes,
+                words: words_touched(self.io.model_base, plan.model_bytes, wb),
+                rows: 0,
+            },
+            samples: 0,
         };
-        let (mut samples, eb) = (0u64, plan.payload / (d + 1));
+        let eb = plan.payload / (d + 1);
         self.loss_sum = 0.0;
         self.samples = 0;
         let nb = plan.blocks();
@@ -258,28 +357,14 @@ impl Engine<'_> {
                     all.len() * share.0 / share.1,
                     all.len() * (share.0 + 1) / share.1,
                 );
-                for mb in all[lo..hi].chunks(p.batch) {
-                    for &r in mb {
-                        reads.read((r - start) as u64);
-                        let z = each!(&mut self.trainer, t => t.sample(r));
-                        self.loss_sum += p.loss.value(z, f64::from(plan.data.labels[r]));
-                        model_r += model_t;
-                    }
-                    let eta = self.hyper.step.at(self.updates);
-                    each!(&mut self.trainer, t => t.update(eta, self.hyper.l2, mb.len()));
-                    model_r += model_t;
-                    model_w += model_t;
-                    self.updates += 1;
-                    samples += mb.len() as u64;
-                    if self.snapshots.len() < p.snapshots {
-                        self.snapshots.push(self.trainer.model());
-                    }
-                }
+                self.pass(plan, &all[lo..hi], start, &mut c);
             }
         }
+        let (reads, model_r, model_w, samples) = (c.reads, c.model_r, c.model_w, c.samples);
         self.samples = samples;
         self.feature_bytes.push(samples * d * eb);
         self.label_bytes.push(samples * eb);
+        let mut reads = reads;
         self.ledger.add(
             Key::device(self.index, phase, self.io.channel, Direction::Read),
             reads.take(),
@@ -293,6 +378,52 @@ impl Engine<'_> {
         };
         self.ledger.add(key(Direction::Read), model_r);
         self.ledger.add(key(Direction::Write), model_w);
+    }
+
+    /// One pass over `share` (rows of the block starting at row `start`), on the widest
+    /// instruction set the plan's token allows. Every path runs the same IEEE operations
+    /// in the same order (Rust never fuses or reorders float arithmetic), so results are
+    /// identical; wider registers only hold more adder-tree lanes at once.
+    fn pass(&mut self, plan: &Plan, share: &[usize], start: usize, c: &mut Counts) {
+        match plan.isa.level() {
+            #[cfg(target_arch = "x86_64")]
+            Level::Avx512 => {
+                // SAFETY: an Avx512 token exists only when detection saw every feature
+                // `pass_avx512` enables (see `kernels::isa`).
+                unsafe { self.pass_avx512(plan, share, start, c) }
+            }
+            #[cfg(target_arch = "x86_64")]
+            Level::Avx2 => {
+                // SAFETY: as above, for the features of the Avx2 token.
+                unsafe { self.pass_avx2(plan, share, start, c) }
+            }
+            Level::Portable => self.pass_body(plan, share, start, c),
+        }
+    }
+
+    #[cfg(target_arch = "x86_64")]
+    #[target_feature(enable = "avx512f,avx512bw,avx512vl,bmi1,bmi2,popcnt")]
+    unsafe fn pass_avx512(&mut self, plan: &Plan, share: &[usize], start: usize, c: &mut Counts) {
+        self.pass_body(plan, share, start, c)
+    }
+
+    #[cfg(target_arch = "x86_64")]
+    #[target_feature(enable = "avx2,bmi1,bmi2,popcnt")]
+    unsafe fn pass_avx2(&mut self, plan: &Plan, share: &[usize], start: usize, c: &mut Counts) {
+        self.pass_body(plan, share, start, c)
+    }
+
+    #[inline(always)]
+    fn pass_body(&mut self, plan: &Plan, share: &[usize], start: usize, c: &mut Counts) {
+        let Engine {
+            trainer,
+            hyper,
+            updates,
+            snapshots,
+            loss_sum,
+            ..
+        } = self;
+        each!(trainer, t => stream(t, plan, share, start, c, (hyper, updates, snapshots, loss_sum)))
     }
 
     fn finish(mut self, plan: &Plan) -> SgdEngineResult {
@@ -352,6 +483,17 @@ pub fn train_validated(
     p: &SgdParams,
     io: &[SgdIo],
 ) -> Result<Vec<SgdEngineResult>, SgdError> {
+    train_on(Isa::detect(), data, p, io)
+}
+
+/// [`train_validated`] with the inner loops compiled for `isa` (every instruction set
+/// gives the same bytes; tests run each one the host has).
+pub fn train_on(
+    isa: Isa,
+    data: &SgdData,
+    p: &SgdParams,
+    io: &[SgdIo],
+) -> Result<Vec<SgdEngineResult>, SgdError> {
     let e_count = p.engines.engines();
     if io.len() != e_count {
         return Err(SgdError::Param(format!(
@@ -384,6 +526,7 @@ pub fn train_validated(
         payload,
         stride,
         model_bytes: m as u64 * mbytes,
+        isa,
     };
     let mut engines: Vec<Engine> = (0..e_count)
         .map(|e| Engine {

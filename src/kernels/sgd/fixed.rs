@@ -282,6 +282,15 @@ impl FixedTrainer {
         }
     }
 
+    /// Starts fetching sample `r`'s values into the cache.
+    #[inline]
+    pub fn prefetch(&self, r: usize) {
+        let n = self.d + 1;
+        (r * n..(r + 1) * n)
+            .step_by(8)
+            .for_each(|i| crate::kernels::prefetch(&self.x, i));
+    }
+
     /// Adds sample `r`'s gradient; returns z as a real.
     pub fn sample(&mut self, r: usize) -> f64 {
         let s = self.spec;

@@ -26,7 +26,7 @@ mod plan;
 pub mod real;
 pub mod tree;
 
-pub use engine::{record_bytes, train, train_engine, train_validated};
+pub use engine::{record_bytes, train, train_engine, train_on, train_validated};
 pub use fixed::{FixedSpec, Overflow, Rounding};
 pub use loss::Loss;
 pub use params::{

@@ -127,8 +127,18 @@ impl<'a, T: Real, const FTZ: bool> FloatTrainer<'a, T, FTZ> {
         }
     }
 
-    /// Adds sample `r`'s gradient; returns its prediction z in `f64`.
+    /// Starts fetching sample `r`'s features into the cache.
     #[inline]
+    pub fn prefetch(&self, r: usize) {
+        let all = self.data.features.as_slice().expect("row-major features");
+        let d = self.data.dims();
+        (r * d..(r + 1) * d)
+            .step_by(16)
+            .for_each(|i| crate::kernels::prefetch(all, i));
+    }
+
+    /// Adds sample `r`'s gradient; returns its prediction z in `f64`.
+    #[inline(always)]
     pub fn sample(&mut self, r: usize) -> f64 {
         let d = self.data.dims();
         let x = self.data.features.row(r);
@@ -149,7 +159,7 @@ impl<'a, T: Real, const FTZ: bool> FloatTrainer<'a, T, FTZ> {
     }
 
     /// Applies and clears the gradient of a minibatch of `batch` samples.
-    #[inline]
+    #[inline(always)]
     pub fn update(&mut self, eta: f64, l2: f64, batch: usize) {
         let d = self.data.dims();
         let s = Self::fl(T::from_f64(eta / batch as f64));

@@ -18,7 +18,7 @@ pub const MAX_LANES: u32 = 64;
 
 /// w·x with `lanes` lanes (a power of two ≤ [`MAX_LANES`]); `FTZ` flushes every product
 /// and sum (the caller flushes the inputs).
-#[inline]
+#[inline(always)]
 pub fn dot<T: Real, const FTZ: bool>(x: &[f32], w: &[T], lanes: u32) -> T {
     match lanes {
         1 => dot_n::<T, FTZ, 1>(x, w),
