@@ -93,15 +93,7 @@ impl FastTable {
 
     #[inline(always)]
     fn prefetch(&self, key: u64) {
-        #[cfg(target_arch = "x86_64")]
-        // SAFETY: prefetch only hints the cache; `home` is always within `buckets`.
-        unsafe {
-            use std::arch::x86_64::{_mm_prefetch, _MM_HINT_T0};
-            let p = self.buckets.as_ptr().add(self.home(key)) as *const i8;
-            _mm_prefetch::<_MM_HINT_T0>(p);
-        }
-        #[cfg(not(target_arch = "x86_64"))]
-        let _ = key;
+        crate::kernels::prefetch(&self.buckets, self.home(key));
     }
 
     /// Calls `hit(row, payload)` for each matching tuple of each probe key, rows in

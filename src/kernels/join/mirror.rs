@@ -209,19 +209,9 @@ impl MirrorTable {
     /// Hints the cache to fetch the home bucket of `key`, for a probe soon after.
     #[inline]
     pub fn prefetch(&self, key: u64) {
-        #[cfg(target_arch = "x86_64")]
-        {
-            use std::arch::x86_64::{_mm_prefetch, _MM_HINT_T0};
-            let first = self.home(key) * self.per_bucket;
-            let last = first + self.per_bucket - 1;
-            // SAFETY: prefetch only hints the cache; both slots are within `slots`.
-            unsafe {
-                _mm_prefetch::<_MM_HINT_T0>(self.slots.as_ptr().add(first) as *const i8);
-                _mm_prefetch::<_MM_HINT_T0>(self.slots.as_ptr().add(last) as *const i8);
-            }
-        }
-        #[cfg(not(target_arch = "x86_64"))]
-        let _ = key;
+        let first = self.home(key) * self.per_bucket;
+        crate::kernels::prefetch(&self.slots, first);
+        crate::kernels::prefetch(&self.slots, first + self.per_bucket - 1);
     }
 
     /// Calls `hit(payload)` for every tuple with key `key`, in build order, and counts the
