@@ -51,8 +51,18 @@ fn dot_n<T: Real, const FTZ: bool, const N: usize>(x: &[f32], w: &[T]) -> T {
             acc[l] = fl::<T, FTZ>(acc[l].add(fl::<T, FTZ>(T::from_f32(xc[l]).mul(wc[l]))));
         }
     }
-    for l in 0..xr.len() {
-        acc[l] = fl::<T, FTZ>(acc[l].add(fl::<T, FTZ>(T::from_f32(xr[l]).mul(wr[l]))));
+    if !xr.is_empty() {
+        // The remainder through a full-width step whose lanes past it keep their sums (a
+        // select): indexing `acc` by a run-time length would keep it in memory.
+        let (mut xp, mut wp) = ([T::ZERO; N], [T::ZERO; N]);
+        for l in 0..xr.len() {
+            xp[l] = T::from_f32(xr[l]);
+            wp[l] = wr[l];
+        }
+        for l in 0..N {
+            let s = fl::<T, FTZ>(acc[l].add(fl::<T, FTZ>(xp[l].mul(wp[l]))));
+            acc[l] = if l < xr.len() { s } else { acc[l] };
+        }
     }
     let mut width = N;
     while width > 1 {
