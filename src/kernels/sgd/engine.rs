@@ -14,15 +14,11 @@ use rayon::prelude::*;
 
 use super::fixed::{self, FixedTrainer};
 use super::params::*;
+use super::pass::{order, stream, Counts, Plan, Reads};
 use super::real::{self, FloatTrainer};
-use crate::gen::rng::Stream;
+use super::record::record_shape;
 use crate::kernels::isa::{Isa, Level};
-use crate::ledger::{words_touched, Cursor, Direction, Key, Ledger, Phase, Region, Traffic};
-
-/// How far ahead of the current sample its successors' rows are fetched, in bytes: far
-/// enough to hide memory latency behind a few samples' arithmetic (common practice for
-/// streaming loops; tuned on the bench).
-const PREFETCH_BYTES: u64 = 2048;
+use crate::ledger::{words_touched, Direction, Key, Ledger, Phase, Region, Traffic};
 
 /// Loss above this many times the zero model's loss (or 1, if larger) is divergence.
 pub const BLOW_UP: f64 = 1e6;
@@ -65,195 +61,6 @@ impl<'a> Trainer<'a> {
     }
 }
 
-/// Bytes of one element of the dataset image.
-fn elem_bytes(n: &Numeric) -> u64 {
-    match n {
-        Numeric::Fixed(s) => u64::from(fixed::storage_bits(s.data) / 8),
-        _ => 4,
-    }
-}
-
-/// (payload, stride) bytes of one record: d features and the label, padded to whole
-/// words when `pad`.
-fn record_shape(d: usize, p: &SgdParams, word_bytes: u64) -> (u64, u64) {
-    let payload = (d as u64 + 1) * elem_bytes(&p.numeric);
-    let stride = if p.pad_records {
-        payload.div_ceil(word_bytes) * word_bytes
-    } else {
-        payload
-    };
-    (payload, stride)
-}
-
-/// The dataset image: per record the d features then the label, little-endian (`f32`
-/// for the float modes, Q_d integers for fixed point), zero padding to whole words when
-/// the job pads records.
-pub fn record_bytes(data: &SgdData, p: &SgdParams, word_bytes: u64) -> Vec<u8> {
-    let (payload, stride) = record_shape(data.dims(), p, word_bytes);
-    let mut out = Vec::with_capacity(data.rows() * stride as usize);
-    let mut none = 0;
-    for (row, &y) in data.features.rows().into_iter().zip(data.labels.iter()) {
-        let start = out.len();
-        for v in row.iter().chain(std::iter::once(&y)) {
-            match &p.numeric {
-                Numeric::Fixed(s) => {
-                    let q = fixed::from_real(
-                        f64::from(*v),
-                        s.data.frac_bits,
-                        fixed::width(s.data),
-                        &mut none,
-                    );
-                    out.extend_from_slice(&q.to_le_bytes()[..elem_bytes(&p.numeric) as usize]);
-                }
-                _ => out.extend_from_slice(&v.to_le_bytes()),
-            }
-        }
-        debug_assert_eq!((out.len() - start) as u64, payload);
-        out.resize(start + stride as usize, 0);
-    }
-    out
-}
-
-/// Counts one engine's record reads: a cursor runs while reads are consecutive.
-struct Reads {
-    base: u64,
-    payload: u64,
-    stride: u64,
-    word_bytes: u64,
-    next: Option<u64>,
-    cursor: Cursor,
-    done: Traffic,
-}
-
-impl Reads {
-    fn new(base: u64, payload: u64, stride: u64, word_bytes: u64) -> Reads {
-        Reads {
-            base,
-            payload,
-            stride,
-            word_bytes,
-            next: None,
-            cursor: Cursor::new(base, word_bytes),
-            done: Traffic::default(),
-        }
-    }
-
-    #[inline]
-    fn read(&mut self, offset_rows: u64) {
-        let addr = self.base + offset_rows * self.stride;
-        if self.stride != self.payload {
-            self.done += Traffic {
-                bytes: self.payload,
-                words: words_touched(addr, self.payload, self.word_bytes),
-                rows: 1,
-            };
-            return;
-        }
-        if self.next != Some(addr) {
-            self.done +=
-                std::mem::replace(&mut self.cursor, Cursor::new(addr, self.word_bytes)).traffic;
-        }
-        self.cursor.touch(self.payload, 1);
-        self.next = Some(addr + self.payload);
-    }
-
-    fn take(&mut self) -> Traffic {
-        let mut t = std::mem::take(&mut self.done);
-        t += std::mem::replace(&mut self.cursor, Cursor::new(self.base, self.word_bytes)).traffic;
-        self.next = None;
-        t
-    }
-}
-
-/// What a trainer does per sample and per minibatch (both trainers implement it, so a
-/// pass is compiled once per trainer with no dispatch per sample).
-trait Trains {
-    fn prefetch(&self, r: usize);
-    fn sample(&mut self, r: usize) -> f64;
-    fn update(&mut self, eta: f64, l2: f64, batch: usize);
-    fn model(&self) -> Model;
-}
-
-impl<T: real::Real, const FTZ: bool> Trains for FloatTrainer<'_, T, FTZ> {
-    #[inline(always)]
-    fn prefetch(&self, r: usize) {
-        FloatTrainer::prefetch(self, r)
-    }
-    #[inline(always)]
-    fn sample(&mut self, r: usize) -> f64 {
-        FloatTrainer::sample(self, r)
-    }
-    #[inline(always)]
-    fn update(&mut self, eta: f64, l2: f64, batch: usize) {
-        FloatTrainer::update(self, eta, l2, batch)
-    }
-    fn model(&self) -> Model {
-        FloatTrainer::model(self)
-    }
-}
-
-impl Trains for Box<FixedTrainer> {
-    #[inline(always)]
-    fn prefetch(&self, r: usize) {
-        FixedTrainer::prefetch(self, r)
-    }
-    #[inline(always)]
-    fn sample(&mut self, r: usize) -> f64 {
-        FixedTrainer::sample(self, r)
-    }
-    #[inline(always)]
-    fn update(&mut self, eta: f64, l2: f64, batch: usize) {
-        FixedTrainer::update(self, eta, l2, batch)
-    }
-    fn model(&self) -> Model {
-        FixedTrainer::model(self)
-    }
-}
-
-/// An epoch's running traffic counts.
-struct Counts {
-    reads: Reads,
-    model_r: Traffic,
-    model_w: Traffic,
-    /// One model's traffic.
-    model_t: Traffic,
-    samples: u64,
-}
-
-/// The samples of `share` through trainer `t`: per sample its prefetch, record read,
-/// gradient and loss; per minibatch one update and (among the first M) a snapshot.
-#[inline(always)]
-fn stream<S: Trains>(
-    t: &mut S,
-    plan: &Plan,
-    share: &[usize],
-    start: usize,
-    c: &mut Counts,
-    (hyper, updates, snapshots, loss_sum): (&Hyper, &mut u64, &mut Vec<Model>, &mut f64),
-) {
-    let p = plan.p;
-    let ahead = (PREFETCH_BYTES / plan.stride).max(1) as usize;
-    for (k, mb) in share.chunks(p.batch).enumerate() {
-        for (i, &r) in mb.iter().enumerate() {
-            if let Some(&next) = share.get(k * p.batch + i + ahead) {
-                t.prefetch(next);
-            }
-            c.reads.read((r - start) as u64);
-            let z = t.sample(r);
-            *loss_sum += p.loss.value(z, f64::from(plan.data.labels[r]));
-            c.model_r += c.model_t;
-        }
-        t.update(hyper.step.at(*updates), hyper.l2, mb.len());
-        c.model_r += c.model_t;
-        c.model_w += c.model_t;
-        *updates += 1;
-        c.samples += mb.len() as u64;
-        if snapshots.len() < p.snapshots {
-            snapshots.push(t.model());
-        }
-    }
-}
-
 /// One engine's state across epochs.
 struct Engine<'a> {
     index: u32,
@@ -270,36 +77,6 @@ struct Engine<'a> {
     feature_bytes: Vec<u64>,
     label_bytes: Vec<u64>,
     ledger: Ledger,
-}
-
-/// The plan shared by all engines.
-struct Plan<'a> {
-    data: &'a SgdData,
-    p: &'a SgdParams,
-    block_rows: usize,
-    payload: u64,
-    stride: u64,
-    model_bytes: u64,
-    isa: Isa,
-}
-
-impl Plan<'_> {
-    fn blocks(&self) -> usize {
-        self.data.rows().div_ceil(self.block_rows)
-    }
-}
-
-/// The sample order of pass `pass` over `rows`.
-pub(crate) fn order(rows: std::ops::Range<usize>, o: Order, pass: u64) -> Vec<usize> {
-    let mut v: Vec<usize> = rows.collect();
-    if let Order::Shuffle { seed } = o {
-        let mut s = Stream::new(seed, "sgd", "order", pass);
-        for i in (1..v.len()).rev() {
-            let j = s.int_in(0, i as i128) as usize;
-            v.swap(i, j);
-        }
-    }
-    v
 }
 
 impl Engine<'_> {

@@ -22,11 +22,13 @@ pub mod lfsr;
 pub mod loss;
 pub mod naive;
 mod params;
+mod pass;
 mod plan;
 pub mod real;
+mod record;
 pub mod tree;
 
-pub use engine::{record_bytes, train, train_engine, train_on, train_validated};
+pub use engine::{train, train_engine, train_on, train_validated};
 pub use fixed::{FixedSpec, Overflow, Rounding};
 pub use loss::Loss;
 pub use params::{
@@ -34,6 +36,7 @@ pub use params::{
     SgdEngineResult, SgdError, SgdIo, SgdParams, Step,
 };
 pub use plan::{PerEngine, SgdConfig, SgdKernel};
+pub use record::record_bytes;
 
 /// Ledger phase of epoch `e`.
 pub fn epoch_phase(e: u32) -> crate::ledger::Phase {

@@ -4,9 +4,9 @@
 //! order. It shares with the fast path only the `Real` operations, the loss derivative
 //! and the sample order.
 
-use super::engine::order;
 use super::loss::Loss;
 use super::params::{Hyper, Order, SgdData};
+use super::pass::order;
 use super::real::Real;
 
 /// The model after every epoch of plain minibatch SGD in `T` (no blocks, one engine).

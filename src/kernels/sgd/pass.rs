@@ -1,0 +1,190 @@
+//! One pass of one engine over its share of a block: the sample loop every trainer runs,
+//! the record-read counting, and prefetching ahead of the stream.
+//!
+//! ```text
+//!   share (sample order) ─► prefetch row of sample i + ahead
+//!                        └► read record (ledger cursor) ─► sample: z, g, G += g·x, loss
+//!   every B samples ─► update (η_t), model traffic, snapshot (first M)
+//! ```
+
+use super::fixed::FixedTrainer;
+use super::params::*;
+use super::real::{self, FloatTrainer};
+use crate::gen::rng::Stream;
+use crate::kernels::isa::Isa;
+use crate::ledger::{words_touched, Cursor, Traffic};
+
+/// How far ahead of the current sample its successors' rows are fetched, in bytes: far
+/// enough to hide memory latency behind a few samples' arithmetic (common practice for
+/// streaming loops; tuned on the bench).
+const PREFETCH_BYTES: u64 = 2048;
+
+/// The plan shared by all engines.
+pub(super) struct Plan<'a> {
+    pub(super) data: &'a SgdData,
+    pub(super) p: &'a SgdParams,
+    pub(super) block_rows: usize,
+    pub(super) payload: u64,
+    pub(super) stride: u64,
+    pub(super) model_bytes: u64,
+    pub(super) isa: Isa,
+}
+
+impl Plan<'_> {
+    pub(super) fn blocks(&self) -> usize {
+        self.data.rows().div_ceil(self.block_rows)
+    }
+}
+
+/// The sample order of pass `pass` over `rows`.
+pub(crate) fn order(rows: std::ops::Range<usize>, o: Order, pass: u64) -> Vec<usize> {
+    let mut v: Vec<usize> = rows.collect();
+    if let Order::Shuffle { seed } = o {
+        let mut s = Stream::new(seed, "sgd", "order", pass);
+        for i in (1..v.len()).rev() {
+            let j = s.int_in(0, i as i128) as usize;
+            v.swap(i, j);
+        }
+    }
+    v
+}
+
+/// Counts one engine's record reads: a cursor runs while reads are consecutive.
+pub(super) struct Reads {
+    base: u64,
+    payload: u64,
+    stride: u64,
+    word_bytes: u64,
+    next: Option<u64>,
+    cursor: Cursor,
+    done: Traffic,
+}
+
+impl Reads {
+    pub(super) fn new(base: u64, payload: u64, stride: u64, word_bytes: u64) -> Reads {
+        Reads {
+            base,
+            payload,
+            stride,
+            word_bytes,
+            next: None,
+            cursor: Cursor::new(base, word_bytes),
+            done: Traffic::default(),
+        }
+    }
+
+    #[inline]
+    fn read(&mut self, offset_rows: u64) {
+        let addr = self.base + offset_rows * self.stride;
+        if self.stride != self.payload {
+            self.done += Traffic {
+                bytes: self.payload,
+                words: words_touched(addr, self.payload, self.word_bytes),
+                rows: 1,
+            };
+            return;
+        }
+        if self.next != Some(addr) {
+            self.done +=
+                std::mem::replace(&mut self.cursor, Cursor::new(addr, self.word_bytes)).traffic;
+        }
+        self.cursor.touch(self.payload, 1);
+        self.next = Some(addr + self.payload);
+    }
+
+    pub(super) fn take(&mut self) -> Traffic {
+        let mut t = std::mem::take(&mut self.done);
+        t += std::mem::replace(&mut self.cursor, Cursor::new(self.base, self.word_bytes)).traffic;
+        self.next = None;
+        t
+    }
+}
+
+/// What a trainer does per sample and per minibatch (both trainers implement it, so a
+/// pass is compiled once per trainer with no dispatch per sample).
+pub(super) trait Trains {
+    fn prefetch(&self, r: usize);
+    fn sample(&mut self, r: usize) -> f64;
+    fn update(&mut self, eta: f64, l2: f64, batch: usize);
+    fn model(&self) -> Model;
+}
+
+impl<T: real::Real, const FTZ: bool> Trains for FloatTrainer<'_, T, FTZ> {
+    #[inline(always)]
+    fn prefetch(&self, r: usize) {
+        FloatTrainer::prefetch(self, r)
+    }
+    #[inline(always)]
+    fn sample(&mut self, r: usize) -> f64 {
+        FloatTrainer::sample(self, r)
+    }
+    #[inline(always)]
+    fn update(&mut self, eta: f64, l2: f64, batch: usize) {
+        FloatTrainer::update(self, eta, l2, batch)
+    }
+    fn model(&self) -> Model {
+        FloatTrainer::model(self)
+    }
+}
+
+impl Trains for Box<FixedTrainer> {
+    #[inline(always)]
+    fn prefetch(&self, r: usize) {
+        FixedTrainer::prefetch(self, r)
+    }
+    #[inline(always)]
+    fn sample(&mut self, r: usize) -> f64 {
+        FixedTrainer::sample(self, r)
+    }
+    #[inline(always)]
+    fn update(&mut self, eta: f64, l2: f64, batch: usize) {
+        FixedTrainer::update(self, eta, l2, batch)
+    }
+    fn model(&self) -> Model {
+        FixedTrainer::model(self)
+    }
+}
+
+/// An epoch's running traffic counts.
+pub(super) struct Counts {
+    pub(super) reads: Reads,
+    pub(super) model_r: Traffic,
+    pub(super) model_w: Traffic,
+    /// One model's traffic.
+    pub(super) model_t: Traffic,
+    pub(super) samples: u64,
+}
+
+/// The samples of `share` through trainer `t`: per sample its prefetch, record read,
+/// gradient and loss; per minibatch one update and (among the first M) a snapshot.
+#[inline(always)]
+pub(super) fn stream<S: Trains>(
+    t: &mut S,
+    plan: &Plan,
+    share: &[usize],
+    start: usize,
+    c: &mut Counts,
+    (hyper, updates, snapshots, loss_sum): (&Hyper, &mut u64, &mut Vec<Model>, &mut f64),
+) {
+    let p = plan.p;
+    let ahead = (PREFETCH_BYTES / plan.stride).max(1) as usize;
+    for (k, mb) in share.chunks(p.batch).enumerate() {
+        for (i, &r) in mb.iter().enumerate() {
+            if let Some(&next) = share.get(k * p.batch + i + ahead) {
+                t.prefetch(next);
+            }
+            c.reads.read((r - start) as u64);
+            let z = t.sample(r);
+            *loss_sum += p.loss.value(z, f64::from(plan.data.labels[r]));
+            c.model_r += c.model_t;
+        }
+        t.update(hyper.step.at(*updates), hyper.l2, mb.len());
+        c.model_r += c.model_t;
+        c.model_w += c.model_t;
+        *updates += 1;
+        c.samples += mb.len() as u64;
+        if snapshots.len() < p.snapshots {
+            snapshots.push(t.model());
+        }
+    }
+}
