@@ -14,6 +14,8 @@ pub const DEMO_JOB: &str = include_str!("../../data/jobs/demo.toml");
 
 /// The demo's join, built in likewise.
 pub const DEMO_JOIN_JOB: &str = include_str!("../../data/jobs/demo-join.toml");
+/// The demo's SGD job, built in.
+pub const DEMO_SGD_JOB: &str = include_str!("../../data/jobs/demo-sgd.toml");
 
 /// On-chip bytes per engine of the demo's second join: too few for the whole registry.
 const DEMO_BLOCKED_ONCHIP: u64 = 512;
@@ -137,6 +139,9 @@ pub fn demo(a: DemoArgs) -> Result<Outcome> {
         None,
         &[],
     )?;
+    let sgd = JobSpec::from_toml(DEMO_SGD_JOB, Path::new("data/jobs/demo-sgd.toml"))?;
+    say!("\nweir demo: {}, four averaging engines", sgd.name);
+    execute(&sgd, Path::new("."), &a.out.join("sgd"), false, None, &[])?;
     let plan = super::args::PlanArgs {
         run_dir: a.out.clone(),
         sweep: Vec::new(),

@@ -554,6 +554,7 @@ impl Kernel for SgdKernel {
             cw.traffic,
         );
         let epochs = r.losses.len();
+        let averaging = matches!(self.params.engines, EngineMode::Averaging { .. });
         let mut outputs = vec![
             self.models("model", Some(0), std::slice::from_ref(&r.model)),
             self.models("epochs", None, &r.epoch_models),
@@ -595,7 +596,12 @@ impl Kernel for SgdKernel {
             ledger,
             rows_in: rows.rows() as u64,
             rows_out: epochs as u64,
-            notes: vec![note],
+            // Averaged engines end every epoch with one model: engine 0 speaks for all.
+            notes: if averaging && ctx.engine > 0 {
+                Vec::new()
+            } else {
+                vec![note]
+            },
         })
     }
 
