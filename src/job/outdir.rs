@@ -217,10 +217,24 @@ impl OutDir {
     }
 
     /// Opens `rel` (a path relative to the directory, subfolders created) for writing.
+    /// Only folders below the temporary directory are created, never the directory
+    /// itself: once a signal has removed it, a worker still writing fails instead of
+    /// bringing it back.
     pub fn file(&self, rel: &str) -> Result<OutFile> {
         let p = self.tmp.join(rel);
-        if let Some(dir) = p.parent() {
-            std::fs::create_dir_all(dir).map_err(|e| Error::io(&self.shown_path(rel), e))?;
+        let mut dir = self.tmp.clone();
+        for part in Path::new(rel)
+            .parent()
+            .into_iter()
+            .flat_map(Path::components)
+        {
+            dir.push(part);
+            match std::fs::create_dir(&dir) {
+                Err(e) if e.kind() != std::io::ErrorKind::AlreadyExists => {
+                    return Err(Error::io(&self.shown_path(rel), e))
+                }
+                _ => {}
+            }
         }
         let f = File::create(&p).map_err(|e| Error::io(&self.shown_path(rel), e))?;
         Ok(HashWriter::new(BufWriter::with_capacity(1 << 20, f)))
