@@ -2,6 +2,7 @@
 //! tables, layout and the ledger, never file formats or the terminal. Each kernel plugs
 //! into the runner through the seam in [`seam`]; [`KernelConfig`] is the one list of them.
 
+pub mod hints;
 pub mod isa;
 pub mod join;
 pub mod predicate;
@@ -18,20 +19,6 @@ use crate::kernels::seam::{Kernel, TableSchema};
 
 use crate::kernels::predicate::Value;
 use crate::table::{Column, ColumnData};
-
-/// Hints the cache to fetch the line holding `items[i]` (nothing when `i` is out of range).
-#[inline(always)]
-pub fn prefetch<T>(items: &[T], i: usize) {
-    #[cfg(target_arch = "x86_64")]
-    if i < items.len() {
-        use std::arch::x86_64::{_mm_prefetch, _MM_HINT_T0};
-        // SAFETY: a prefetch only hints the cache and never faults; the address is inside
-        // `items` (checked above).
-        unsafe { _mm_prefetch::<_MM_HINT_T0>(items.as_ptr().add(i).cast::<i8>()) }
-    }
-    #[cfg(not(target_arch = "x86_64"))]
-    let _ = (items, i);
-}
 
 /// Row `r` of `col` as a predicate value (for the row-at-a-time oracles).
 pub fn value_at(col: &Column, r: usize) -> Value {

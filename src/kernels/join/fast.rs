@@ -56,14 +56,16 @@ impl FastTable {
     pub fn build(keys: &[u64], payloads: &[u64]) -> FastTable {
         let count = (keys.len() * 2).div_ceil(SLOTS).next_power_of_two().max(4);
         let empty = absent_key(keys);
+        let mut buckets = crate::kernels::hints::huge_vec(count);
+        buckets.resize(
+            count,
+            Bucket {
+                keys: [empty; SLOTS],
+                pays: [0; SLOTS],
+            },
+        );
         let mut t = FastTable {
-            buckets: vec![
-                Bucket {
-                    keys: [empty; SLOTS],
-                    pays: [0; SLOTS],
-                };
-                count
-            ],
+            buckets,
             mask: count - 1,
             shift: 64 - count.trailing_zeros(),
             empty,
@@ -93,7 +95,7 @@ impl FastTable {
 
     #[inline(always)]
     fn prefetch(&self, key: u64) {
-        crate::kernels::prefetch(&self.buckets, self.home(key));
+        crate::kernels::hints::prefetch(&self.buckets, self.home(key));
     }
 
     /// Calls `hit(row, payload)` for each matching tuple of each probe key, rows in

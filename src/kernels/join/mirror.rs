@@ -92,7 +92,11 @@ impl MirrorTable {
         let per = plan.slots_per_bucket as usize;
         let n = buckets * per + plan.overflow_slots as usize;
         MirrorTable {
-            slots: vec![Slot::default(); n],
+            slots: {
+                let mut v = crate::kernels::hints::huge_vec(n);
+                v.resize(n, Slot::default());
+                v
+            },
             tails: if plan.overflow_slots > 0 {
                 vec![0; buckets]
             } else {
@@ -210,8 +214,8 @@ impl MirrorTable {
     #[inline]
     pub fn prefetch(&self, key: u64) {
         let first = self.home(key) * self.per_bucket;
-        crate::kernels::prefetch(&self.slots, first);
-        crate::kernels::prefetch(&self.slots, first + self.per_bucket - 1);
+        crate::kernels::hints::prefetch(&self.slots, first);
+        crate::kernels::hints::prefetch(&self.slots, first + self.per_bucket - 1);
     }
 
     /// Calls `hit(payload)` for every tuple with key `key`, in build order, and counts the

@@ -288,7 +288,7 @@ impl FixedTrainer {
         let n = self.d + 1;
         (r * n..(r + 1) * n)
             .step_by(8)
-            .for_each(|i| crate::kernels::prefetch(&self.x, i));
+            .for_each(|i| crate::kernels::hints::prefetch(&self.x, i));
     }
 
     /// Adds sample `r`'s gradient; returns z as a real.

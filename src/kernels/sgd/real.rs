@@ -134,7 +134,7 @@ impl<'a, T: Real, const FTZ: bool> FloatTrainer<'a, T, FTZ> {
         let d = self.data.dims();
         (r * d..(r + 1) * d)
             .step_by(16)
-            .for_each(|i| crate::kernels::prefetch(all, i));
+            .for_each(|i| crate::kernels::hints::prefetch(all, i));
     }
 
     /// Adds sample `r`'s gradient; returns its prediction z in `f64`.
