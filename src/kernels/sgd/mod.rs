@@ -18,6 +18,7 @@
 
 mod engine;
 pub mod fixed;
+mod keys;
 pub mod lfsr;
 pub mod loss;
 pub mod naive;
@@ -30,12 +31,13 @@ pub mod tree;
 
 pub use engine::{train, train_engine, train_on, train_validated};
 pub use fixed::{FixedSpec, Overflow, Rounding};
+pub use keys::{PerEngine, SgdConfig};
 pub use loss::Loss;
 pub use params::{
     validate, EngineMode, Hyper, Model, ModelElem, Numeric, Order, OverflowCounts, SgdData,
     SgdEngineResult, SgdError, SgdIo, SgdParams, Step,
 };
-pub use plan::{PerEngine, SgdConfig, SgdKernel};
+pub use plan::SgdKernel;
 pub use record::record_bytes;
 
 /// Ledger phase of epoch `e`.
