@@ -237,7 +237,7 @@ pub enum ImageError {
 }
 
 /// Writes `bytes` as an image of `format`; returns the number of words written.
-pub fn write_image<W: Write>(
+pub fn write_image<W: Write + Send>(
     w: &mut W,
     format: ImageFormat,
     word_bytes: usize,
