@@ -123,6 +123,39 @@ pub fn write_hex_segments<W: Write + Send>(
     word_bytes: usize,
     segments: &[Segment],
 ) -> Result<u64, ImageError> {
+    let total = check_segments(word_bytes, segments)?;
+    let mut out = Lines::new(w);
+    for seg in segments {
+        out.text(&segment_head(seg))?;
+        if !seg.bytes.is_empty() {
+            out.words(word_bytes, seg.bytes)?;
+        }
+    }
+    out.finish()?;
+    Ok(total)
+}
+
+/// Writes one region twice from a single formatting of its words: to `image` as a hex
+/// image from address 0 (what [`write_hex`] writes) and to `channel` as one segment (what
+/// [`write_hex_segments`] writes for it); returns the number of words. The two writers
+/// take each block of text side by side. A refused segment leaves both untouched.
+pub fn write_hex_and_segment<A: Write + Send, B: Write + Send>(
+    image: &mut A,
+    channel: &mut B,
+    word_bytes: usize,
+    seg: &Segment,
+) -> Result<u64, ImageError> {
+    let words = check_segments(word_bytes, std::slice::from_ref(seg))?;
+    channel.write_all(segment_head(seg).as_bytes())?;
+    let mut out = Lines::new(Both { image, channel });
+    out.words(word_bytes, seg.bytes)?;
+    out.finish()?;
+    Ok(words)
+}
+
+/// Checks a word size and the segments of a per-channel image (labels on one line, sorted,
+/// not overlapping, within the address space); returns their words in all.
+fn check_segments(word_bytes: usize, segments: &[Segment]) -> Result<u64, ImageError> {
     check_word_bytes(word_bytes)?;
     let mut total = 0u64;
     let mut prev: Option<(&Segment, u64)> = None;
@@ -148,31 +181,48 @@ pub fn write_hex_segments<W: Write + Send>(
         prev = Some((seg, end));
         total += words;
     }
-    let mut out = Lines::new(w);
-    for seg in segments {
-        if seg.bytes.is_empty() {
-            // An address line with no words after it would point past the end of a
-            // memory sized to the words present; simulators report it as out of range.
-            out.text(&format!("// {} (empty)\n", seg.label))?;
-            continue;
-        }
-        out.text(&format!("// {}\n@{:x}\n", seg.label, seg.word_addr))?;
-        out.words(word_bytes, seg.bytes)?;
-    }
-    out.finish()?;
     Ok(total)
+}
+
+/// The lines before a segment's words: its label, then its address unless it is empty (an
+/// address line with no words after it would point past the end of a memory sized to the
+/// words present; simulators report it as out of range).
+fn segment_head(seg: &Segment) -> String {
+    if seg.bytes.is_empty() {
+        format!("// {} (empty)\n", seg.label)
+    } else {
+        format!("// {}\n@{:x}\n", seg.label, seg.word_addr)
+    }
+}
+
+/// Two writers that receive the same bytes, each large write on its own thread.
+struct Both<'a, A, B> {
+    image: &'a mut A,
+    channel: &'a mut B,
+}
+
+impl<A: Write + Send, B: Write + Send> Write for Both<'_, A, B> {
+    fn write(&mut self, buf: &[u8]) -> std::io::Result<usize> {
+        let (image, channel) = (&mut *self.image, &mut *self.channel);
+        let (a, b) = rayon::join(|| image.write_all(buf), || channel.write_all(buf));
+        a.and(b).map(|()| buf.len())
+    }
+
+    fn flush(&mut self) -> std::io::Result<()> {
+        self.image.flush().and(self.channel.flush())
+    }
 }
 
 /// Hex lines gathered in a buffer in front of a writer. While one block of text is being
 /// written the next is formatted into the spare buffer, so formatting overlaps the write.
-struct Lines<'w, W: Write + Send> {
-    w: &'w mut W,
+struct Lines<W: Write + Send> {
+    w: W,
     buf: Vec<u8>,
     spare: Vec<u8>,
 }
 
-impl<'w, W: Write + Send> Lines<'w, W> {
-    fn new(w: &'w mut W) -> Self {
+impl<W: Write + Send> Lines<W> {
+    fn new(w: W) -> Self {
         Lines {
             w,
             buf: Vec::new(),
@@ -198,7 +248,7 @@ impl<'w, W: Write + Send> Lines<'w, W> {
                 continue;
             }
             self.spare.clear();
-            let (w, buf, spare) = (&mut *self.w, &self.buf, &mut self.spare);
+            let (w, buf, spare) = (&mut self.w, &self.buf, &mut self.spare);
             let (written, ()) = rayon::join(
                 || w.write_all(buf),
                 || encode_hex_into(spare, word_bytes, piece),
@@ -209,7 +259,7 @@ impl<'w, W: Write + Send> Lines<'w, W> {
         Ok(())
     }
 
-    fn finish(self) -> std::io::Result<()> {
+    fn finish(mut self) -> std::io::Result<()> {
         self.w.write_all(&self.buf)
     }
 }
@@ -288,6 +338,31 @@ mod tests {
         write_hex_segments(&mut out, word_bytes, &[seg]).unwrap();
         assert_eq!(&out[..14], b"keep// big\n@5\n");
         assert!(out[14..] == whole[..], "blocks differ from one-piece text");
+    }
+
+    #[test]
+    fn one_formatting_feeds_the_image_and_the_channel_segment() {
+        for bytes in [&[][..], &[0x11, 0x22, 0x33, 0x44, 0x55][..]] {
+            let seg = Segment {
+                word_addr: 0x1a0,
+                bytes,
+                label: "p0 keys",
+            };
+            let (mut image, mut channel) = (Vec::new(), b"// earlier\n".to_vec());
+            let words = write_hex_and_segment(&mut image, &mut channel, 4, &seg).unwrap();
+            let (mut alone, mut segments) = (Vec::new(), b"// earlier\n".to_vec());
+            assert_eq!(words, write_hex(&mut alone, 4, bytes).unwrap());
+            write_hex_segments(&mut segments, 4, &[seg]).unwrap();
+            assert_eq!((image, channel), (alone, segments));
+        }
+        let bad = Segment {
+            word_addr: 0,
+            bytes: &[1],
+            label: "a\nb",
+        };
+        let (mut image, mut channel) = (Vec::new(), Vec::new());
+        assert!(write_hex_and_segment(&mut image, &mut channel, 4, &bad).is_err());
+        assert!(image.is_empty() && channel.is_empty());
     }
 
     #[test]
