@@ -6,20 +6,53 @@
 //! `cargo bench --bench write [-- MIB [DIR]]`: payload MiB (default 256) and directory
 //! (default the system temporary directory). Both files are overwritten in place, so the
 //! page cache and the file system see the same work for both.
+//!
+//! A first row, `sha256`, hashes the payload without writing it, against the plain write
+//! of as many bytes: every image is hashed whole, so no format's ratio can exceed it.
 
 use std::fs::File;
 use std::io::{BufWriter, Write};
 use std::path::{Path, PathBuf};
 
-use weir::bench::interleave::interleave;
+use weir::bench::interleave::{interleave, Interleaved};
 use weir::image::{write_bin, write_hex, write_npy_words};
 use weir::job::outdir::HashWriter;
+use weir::job::sha256_hex;
 
 const WORD_BYTES: usize = 64;
 
 fn sink(path: &Path) -> HashWriter<BufWriter<File>> {
     let f = File::create(path).expect("create bench file");
     HashWriter::new(BufWriter::with_capacity(1 << 20, f))
+}
+
+/// The reference: `bytes` bytes written to `path` in 1 MiB blocks through a BufWriter.
+fn plain_write(path: &Path, bytes: usize) {
+    static BLOCK: [u8; 1 << 20] = [0x5a; 1 << 20];
+    let block = &BLOCK;
+    let mut f = BufWriter::with_capacity(1 << 20, File::create(path).expect("create"));
+    let mut left = bytes;
+    while left > 0 {
+        let n = left.min(block.len());
+        f.write_all(&block[..n]).expect("plain write");
+        left -= n;
+    }
+    f.flush().expect("flush");
+}
+
+/// One table row: the bytes, both rates, the ratio of medians and the quartiles of the
+/// per-pair ratios.
+fn row(name: &str, bytes: u64, m: &Interleaved) {
+    let gb = bytes as f64 / 1e9;
+    println!(
+        "{name:6}  {:8.0}  {:10.2}  {:10.2}  {:11.2}  {:.2}–{:.2}",
+        bytes as f64 / 1e6,
+        gb / m.kernel.median_s,
+        gb / m.reference.median_s,
+        m.ratio,
+        m.ratio_q1,
+        m.ratio_q3
+    );
 }
 
 fn main() {
@@ -51,42 +84,30 @@ fn main() {
         ("bin", write_bin),
         ("npy", write_npy_words),
     ];
+    let m = interleave(
+        1,
+        5,
+        &mut || plain_write(&plain, payload.len()),
+        &mut || {
+            std::hint::black_box(sha256_hex(&payload));
+        },
+    );
+    row("sha256", payload.len() as u64, &m);
     for (name, write) in formats {
         let mut w = sink(&img);
         write(&mut w, WORD_BYTES, &payload).expect("write image");
         let (out_bytes, _) = w.finish().expect("finish image");
-        // The reference writes the image's byte count in 1 MiB blocks through a BufWriter.
-        let block = vec![0x5au8; 1 << 20];
         let m = interleave(
             1,
             5,
-            &mut || {
-                let mut f =
-                    BufWriter::with_capacity(1 << 20, File::create(&plain).expect("create"));
-                let mut left = out_bytes as usize;
-                while left > 0 {
-                    let n = left.min(block.len());
-                    f.write_all(&block[..n]).expect("plain write");
-                    left -= n;
-                }
-                f.flush().expect("flush");
-            },
+            &mut || plain_write(&plain, out_bytes as usize),
             &mut || {
                 let mut w = sink(&img);
                 write(&mut w, WORD_BYTES, &payload).expect("write image");
                 std::hint::black_box(w.finish().expect("finish image"));
             },
         );
-        let gb = out_bytes as f64 / 1e9;
-        println!(
-            "{name:6}  {:8.0}  {:10.2}  {:10.2}  {:11.2}  {:.2}–{:.2}",
-            out_bytes as f64 / 1e6,
-            gb / m.kernel.median_s,
-            gb / m.reference.median_s,
-            m.ratio,
-            m.ratio_q1,
-            m.ratio_q3
-        );
+        row(name, out_bytes, &m);
     }
     let _ = std::fs::remove_file(&img);
     let _ = std::fs::remove_file(&plain);

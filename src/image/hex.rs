@@ -6,10 +6,14 @@ use std::io::Write;
 
 use super::{check_word_bytes, words_for, ImageError};
 
-/// Payload bytes formatted per write: the text (a little over twice as long) goes to the
-/// writer in one call, large enough that a buffered writer passes it straight through
-/// instead of copying it into its own buffer.
-const BLOCK_BYTES: usize = 1 << 20;
+/// Text written per call: large, since each call hands work between threads (see
+/// [`Lines`]), and at least the 1 MiB of a buffered writer's buffer, so that it passes the
+/// text straight through instead of copying it into its own buffer.
+const TEXT_BYTES: usize = 1 << 20;
+
+/// Payload bytes formatted per block: at least two digits per byte make at least
+/// [`TEXT_BYTES`] of text.
+const BLOCK_BYTES: usize = TEXT_BYTES / 2;
 
 /// Two lowercase hex digits of each byte value, most-significant first.
 const DIGITS: [[u8; 2]; 256] = {
@@ -47,14 +51,41 @@ pub fn encode_hex_into(out: &mut Vec<u8>, word_bytes: usize, bytes: &[u8]) {
     }
 }
 
-/// One line: the digits of `word` from its last byte to its first, then LF.
+/// One line: the digits of `word` from its last byte to its first, then LF. Four bytes
+/// at a time become eight digits in one 64-bit register; the at most three bytes at the
+/// word's low end that do not fill a group go through the table.
 #[inline(always)]
 fn encode_word(line: &mut [u8], word: &[u8]) {
     let (digits, lf) = line.split_at_mut(2 * word.len());
-    for (d, &b) in digits.chunks_exact_mut(2).zip(word.iter().rev()) {
+    let (low, groups) = word.split_at(word.len() % 4);
+    let (group_digits, low_digits) = digits.split_at_mut(2 * groups.len());
+    for (d, g) in group_digits
+        .chunks_exact_mut(8)
+        .zip(groups.rchunks_exact(4))
+    {
+        let g: [u8; 4] = g.try_into().expect("four bytes");
+        d.copy_from_slice(&digits4(u32::from_be_bytes(g)));
+    }
+    for (d, &b) in low_digits.chunks_exact_mut(2).zip(low.iter().rev()) {
         d.copy_from_slice(&DIGITS[usize::from(b)]);
     }
     lf[0] = b'\n';
+}
+
+/// The eight hex digits of four bytes, the byte printed first in the low eight bits of
+/// `v`: each byte is spread to its own 16-bit lane, its nibbles swapped so the high one
+/// prints first, and every nibble turned into `0`..`9` or `a`..`f` without a branch
+/// (nibbles of 10 and more carry into bit 4 when 6 is added, and those get 0x27 more).
+#[inline(always)]
+fn digits4(v: u32) -> [u8; 8] {
+    const LOW_NIBBLES: u64 = 0x000f_000f_000f_000f;
+    const EACH: u64 = 0x0101_0101_0101_0101;
+    let mut x = u64::from(v);
+    x = (x | x << 16) & 0x0000_ffff_0000_ffff;
+    x = (x | x << 8) & 0x00ff_00ff_00ff_00ff;
+    let n = (x >> 4 & LOW_NIBBLES) | (x & LOW_NIBBLES) << 8;
+    let letters = (n + 6 * EACH) >> 4 & EACH;
+    (n + u64::from(b'0') * EACH + letters * u64::from(b'a' - b'0' - 10)).to_le_bytes()
 }
 
 /// One region of a per-channel hex image.
@@ -69,7 +100,11 @@ pub struct Segment<'a> {
 }
 
 /// Writes `bytes` as hex words from address 0; returns the number of words written.
-pub fn write_hex<W: Write>(w: &mut W, word_bytes: usize, bytes: &[u8]) -> Result<u64, ImageError> {
+pub fn write_hex<W: Write + Send>(
+    w: &mut W,
+    word_bytes: usize,
+    bytes: &[u8],
+) -> Result<u64, ImageError> {
     check_word_bytes(word_bytes)?;
     let mut out = Lines::new(w);
     out.words(word_bytes, bytes)?;
@@ -83,11 +118,44 @@ pub fn write_hex<W: Write>(w: &mut W, word_bytes: usize, bytes: &[u8]) -> Result
 ///
 /// Segments must be sorted by address and must not overlap; this is checked before anything
 /// is written, so a refused image leaves the writer untouched.
-pub fn write_hex_segments<W: Write>(
+pub fn write_hex_segments<W: Write + Send>(
     w: &mut W,
     word_bytes: usize,
     segments: &[Segment],
 ) -> Result<u64, ImageError> {
+    let total = check_segments(word_bytes, segments)?;
+    let mut out = Lines::new(w);
+    for seg in segments {
+        out.text(&segment_head(seg))?;
+        if !seg.bytes.is_empty() {
+            out.words(word_bytes, seg.bytes)?;
+        }
+    }
+    out.finish()?;
+    Ok(total)
+}
+
+/// Writes one region twice from a single formatting of its words: to `image` as a hex
+/// image from address 0 (what [`write_hex`] writes) and to `channel` as one segment (what
+/// [`write_hex_segments`] writes for it); returns the number of words. The two writers
+/// take each block of text side by side. A refused segment leaves both untouched.
+pub fn write_hex_and_segment<A: Write + Send, B: Write + Send>(
+    image: &mut A,
+    channel: &mut B,
+    word_bytes: usize,
+    seg: &Segment,
+) -> Result<u64, ImageError> {
+    let words = check_segments(word_bytes, std::slice::from_ref(seg))?;
+    channel.write_all(segment_head(seg).as_bytes())?;
+    let mut out = Lines::new(Both { image, channel });
+    out.words(word_bytes, seg.bytes)?;
+    out.finish()?;
+    Ok(words)
+}
+
+/// Checks a word size and the segments of a per-channel image (labels on one line, sorted,
+/// not overlapping, within the address space); returns their words in all.
+fn check_segments(word_bytes: usize, segments: &[Segment]) -> Result<u64, ImageError> {
     check_word_bytes(word_bytes)?;
     let mut total = 0u64;
     let mut prev: Option<(&Segment, u64)> = None;
@@ -113,56 +181,85 @@ pub fn write_hex_segments<W: Write>(
         prev = Some((seg, end));
         total += words;
     }
-    let mut out = Lines::new(w);
-    for seg in segments {
-        if seg.bytes.is_empty() {
-            // An address line with no words after it would point past the end of a
-            // memory sized to the words present; simulators report it as out of range.
-            out.text(&format!("// {} (empty)\n", seg.label))?;
-            continue;
-        }
-        out.text(&format!("// {}\n@{:x}\n", seg.label, seg.word_addr))?;
-        out.words(word_bytes, seg.bytes)?;
-    }
-    out.finish()?;
     Ok(total)
 }
 
-/// Hex lines gathered in a buffer in front of a writer.
-struct Lines<'w, W: Write> {
-    w: &'w mut W,
-    buf: Vec<u8>,
+/// The lines before a segment's words: its label, then its address unless it is empty (an
+/// address line with no words after it would point past the end of a memory sized to the
+/// words present; simulators report it as out of range).
+fn segment_head(seg: &Segment) -> String {
+    if seg.bytes.is_empty() {
+        format!("// {} (empty)\n", seg.label)
+    } else {
+        format!("// {}\n@{:x}\n", seg.label, seg.word_addr)
+    }
 }
 
-impl<'w, W: Write> Lines<'w, W> {
-    fn new(w: &'w mut W) -> Self {
-        Lines { w, buf: Vec::new() }
+/// Two writers that receive the same bytes, each large write on its own thread.
+struct Both<'a, A, B> {
+    image: &'a mut A,
+    channel: &'a mut B,
+}
+
+impl<A: Write + Send, B: Write + Send> Write for Both<'_, A, B> {
+    fn write(&mut self, buf: &[u8]) -> std::io::Result<usize> {
+        let (image, channel) = (&mut *self.image, &mut *self.channel);
+        let (a, b) = rayon::join(|| image.write_all(buf), || channel.write_all(buf));
+        a.and(b).map(|()| buf.len())
+    }
+
+    fn flush(&mut self) -> std::io::Result<()> {
+        self.image.flush().and(self.channel.flush())
+    }
+}
+
+/// Hex lines gathered in a buffer in front of a writer. While one block of text is being
+/// written the next is formatted into the spare buffer, so formatting overlaps the write.
+struct Lines<W: Write + Send> {
+    w: W,
+    buf: Vec<u8>,
+    spare: Vec<u8>,
+}
+
+impl<W: Write + Send> Lines<W> {
+    fn new(w: W) -> Self {
+        Lines {
+            w,
+            buf: Vec::new(),
+            spare: Vec::new(),
+        }
     }
 
     fn text(&mut self, text: &str) -> std::io::Result<()> {
         self.buf.extend_from_slice(text.as_bytes());
-        self.spill()
-    }
-
-    /// One line per word; bytes missing from a short last word print as `00`.
-    fn words(&mut self, word_bytes: usize, bytes: &[u8]) -> std::io::Result<()> {
-        let block = (BLOCK_BYTES / word_bytes).max(1) * word_bytes;
-        for piece in bytes.chunks(block) {
-            encode_hex_into(&mut self.buf, word_bytes, piece);
-            self.spill()?;
-        }
-        Ok(())
-    }
-
-    fn spill(&mut self) -> std::io::Result<()> {
-        if self.buf.len() >= BLOCK_BYTES {
+        if self.buf.len() >= TEXT_BYTES {
             self.w.write_all(&self.buf)?;
             self.buf.clear();
         }
         Ok(())
     }
 
-    fn finish(self) -> std::io::Result<()> {
+    /// One line per word; bytes missing from a short last word print as `00`.
+    fn words(&mut self, word_bytes: usize, bytes: &[u8]) -> std::io::Result<()> {
+        let block = (BLOCK_BYTES / word_bytes).max(1) * word_bytes;
+        for piece in bytes.chunks(block) {
+            if self.buf.len() < TEXT_BYTES {
+                encode_hex_into(&mut self.buf, word_bytes, piece);
+                continue;
+            }
+            self.spare.clear();
+            let (w, buf, spare) = (&mut self.w, &self.buf, &mut self.spare);
+            let (written, ()) = rayon::join(
+                || w.write_all(buf),
+                || encode_hex_into(spare, word_bytes, piece),
+            );
+            written?;
+            std::mem::swap(&mut self.buf, &mut self.spare);
+        }
+        Ok(())
+    }
+
+    fn finish(mut self) -> std::io::Result<()> {
         self.w.write_all(&self.buf)
     }
 }
@@ -206,7 +303,7 @@ mod tests {
     fn table_encoder_matches_formatted_digits_for_every_width_and_length() {
         // The reference is the standard library's `{:02x}` formatting, word by word.
         let bytes: Vec<u8> = (0..2000u32).map(|i| (i * 37 % 256) as u8).collect();
-        for word_bytes in [1, 2, 3, 4, 8, 64, 512] {
+        for word_bytes in [1, 2, 3, 4, 5, 7, 8, 64, 511, 512] {
             for len in [0, 1, word_bytes - 1, word_bytes, 3 * word_bytes + 1, 700] {
                 let mut got = b"keep".to_vec();
                 encode_hex_into(&mut got, word_bytes, &bytes[..len]);
@@ -220,6 +317,52 @@ mod tests {
                 assert_eq!(String::from_utf8(got).unwrap(), want, "{word_bytes} {len}");
             }
         }
+    }
+
+    #[test]
+    fn text_written_in_overlapping_blocks_joins_in_order() {
+        // Enough words for three full blocks and a part, so the write of one block runs
+        // beside the formatting of the next at every seam.
+        let word_bytes = 3;
+        let bytes: Vec<u8> = (0..3 * BLOCK_BYTES as u32 + 1001)
+            .map(|i| (i.wrapping_mul(2_654_435_761) >> 13) as u8)
+            .collect();
+        let mut whole = Vec::new();
+        encode_hex_into(&mut whole, word_bytes, &bytes);
+        let mut out = b"keep".to_vec();
+        let seg = Segment {
+            word_addr: 5,
+            bytes: &bytes,
+            label: "big",
+        };
+        write_hex_segments(&mut out, word_bytes, &[seg]).unwrap();
+        assert_eq!(&out[..14], b"keep// big\n@5\n");
+        assert!(out[14..] == whole[..], "blocks differ from one-piece text");
+    }
+
+    #[test]
+    fn one_formatting_feeds_the_image_and_the_channel_segment() {
+        for bytes in [&[][..], &[0x11, 0x22, 0x33, 0x44, 0x55][..]] {
+            let seg = Segment {
+                word_addr: 0x1a0,
+                bytes,
+                label: "p0 keys",
+            };
+            let (mut image, mut channel) = (Vec::new(), b"// earlier\n".to_vec());
+            let words = write_hex_and_segment(&mut image, &mut channel, 4, &seg).unwrap();
+            let (mut alone, mut segments) = (Vec::new(), b"// earlier\n".to_vec());
+            assert_eq!(words, write_hex(&mut alone, 4, bytes).unwrap());
+            write_hex_segments(&mut segments, 4, &[seg]).unwrap();
+            assert_eq!((image, channel), (alone, segments));
+        }
+        let bad = Segment {
+            word_addr: 0,
+            bytes: &[1],
+            label: "a\nb",
+        };
+        let (mut image, mut channel) = (Vec::new(), Vec::new());
+        assert!(write_hex_and_segment(&mut image, &mut channel, 4, &bad).is_err());
+        assert!(image.is_empty() && channel.is_empty());
     }
 
     #[test]

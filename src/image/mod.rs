@@ -17,7 +17,7 @@ mod hex_read;
 mod npy_words;
 
 pub use bin::{read_bin, write_bin};
-pub use hex::{encode_hex_into, write_hex, write_hex_segments, Segment};
+pub use hex::{encode_hex_into, write_hex, write_hex_and_segment, write_hex_segments, Segment};
 pub use hex_read::{dense_limit, read_hex, HexProblem, SPARSE_DUMP_BYTES};
 pub use npy_words::{read_npy_words, write_npy_words};
 
@@ -237,7 +237,7 @@ pub enum ImageError {
 }
 
 /// Writes `bytes` as an image of `format`; returns the number of words written.
-pub fn write_image<W: Write>(
+pub fn write_image<W: Write + Send>(
     w: &mut W,
     format: ImageFormat,
     word_bytes: usize,

@@ -50,19 +50,35 @@ impl<'a> RunFiles<'a> {
     }
 
     /// Writes `bytes` as a memory image `stem.{ext}` in every format; `proto` carries the
-    /// entry's metadata.
+    /// entry's metadata. With `segment`, the input region the bytes fill, they also go to
+    /// its channel's hex image, from the same formatted text as `stem.hex` when hex is one
+    /// of the formats.
     pub fn images(
         &mut self,
         stem: &str,
         formats: &[ImageFormat],
         bytes: &[u8],
         proto: &FileEntry,
+        segment: Option<&Placed>,
     ) -> Result<()> {
+        let wb = self.word_bytes as usize;
         for &f in formats {
             let rel = self.rel(&format!("{stem}.{}", f.ext()));
             let mut out = self.dir.file(&rel)?;
-            let words = image::write_image(&mut out, f, self.word_bytes as usize, bytes)
-                .map_err(|e| Error::input(format!("{rel}: {e}")))?;
+            let words = match segment.filter(|_| f == ImageFormat::Hex) {
+                Some(reg) => {
+                    let label = reg.id.to_string();
+                    let seg = Segment {
+                        word_addr: reg.word_addr(self.word_bytes),
+                        bytes,
+                        label: &label,
+                    };
+                    let img = self.channel_image(reg)?;
+                    image::write_hex_and_segment(&mut out, &mut img.out, wb, &seg)
+                }
+                None => image::write_image(&mut out, f, wb, bytes),
+            }
+            .map_err(|e| Error::input(format!("{rel}: {e}")))?;
             let (fbytes, sha) = out.finish().map_err(self.io(&rel))?;
             self.files.push(FileEntry {
                 path: rel,
@@ -76,7 +92,10 @@ impl<'a> RunFiles<'a> {
                 ..proto.clone()
             });
         }
-        Ok(())
+        match segment {
+            Some(reg) if !formats.contains(&ImageFormat::Hex) => self.channel_segment(reg, bytes),
+            _ => Ok(()),
+        }
     }
 
     /// Writes a typed `.npy` array.
@@ -120,6 +139,22 @@ impl<'a> RunFiles<'a> {
 
     /// Appends `bytes`, the contents of input region `reg`, to its channel's hex image.
     pub fn channel_segment(&mut self, reg: &Placed, bytes: &[u8]) -> Result<()> {
+        let label = reg.id.to_string();
+        let seg = Segment {
+            word_addr: reg.word_addr(self.word_bytes),
+            bytes,
+            label: &label,
+        };
+        let wb = self.word_bytes as usize;
+        let img = self.channel_image(reg)?;
+        image::write_hex_segments(&mut img.out, wb, &[seg])
+            .map_err(|e| Error::input(format!("{}: {e}", img.rel)))?;
+        Ok(())
+    }
+
+    /// The hex image of `reg`'s channel, opened on first use, with `reg` counted in its
+    /// extent.
+    fn channel_image(&mut self, reg: &Placed) -> Result<&mut ChannelImage> {
         let ch = reg.channel as usize;
         if self.channels[ch].is_none() {
             let rel = self.rel(&format!("input/ch{ch}.hex"));
@@ -131,16 +166,8 @@ impl<'a> RunFiles<'a> {
         }
         let wb = self.word_bytes;
         let img = self.channels[ch].as_mut().expect("opened above");
-        let label = reg.id.to_string();
-        let seg = Segment {
-            word_addr: reg.word_addr(wb),
-            bytes,
-            label: &label,
-        };
-        image::write_hex_segments(&mut img.out, wb as usize, &[seg])
-            .map_err(|e| Error::input(format!("{}: {e}", img.rel)))?;
         img.end_word = img.end_word.max(reg.word_addr(wb) + reg.words);
-        Ok(())
+        Ok(img)
     }
 
     /// Closes the channel images and records them; `table` names the input table when

@@ -293,10 +293,14 @@ fn write_table_images(
             base: Some(reg.base),
             ..image_entry(prep, t, ci, col, proto)
         };
-        w.images(&format!("input/{}", reg.id), &prep.formats, &bytes, &entry)?;
-        if prep.spec.output.channel_images {
-            w.channel_segment(reg, &bytes)?;
-        }
+        let segment = prep.spec.output.channel_images.then_some(reg);
+        w.images(
+            &format!("input/{}", reg.id),
+            &prep.formats,
+            &bytes,
+            &entry,
+            segment,
+        )?;
     }
     Ok(())
 }
@@ -342,6 +346,22 @@ fn write_replicas(w: &mut RunFiles, prep: &Prepared) -> Result<()> {
         };
         let cols = prep.image_columns(t);
         let images = image_bytes(prep, whole);
+        // The engine reading each channel's copy; the first copy is written together with
+        // the images, the others after them.
+        let readers: Vec<usize> = if prep.spec.output.channel_images {
+            prep.engine_channels()
+                .into_iter()
+                .map(|ch| {
+                    prep.engines
+                        .iter()
+                        .position(|p| p.channel == ch)
+                        .expect("an engine")
+                })
+                .collect()
+        } else {
+            Vec::new()
+        };
+        let copy = |e: usize, col: &str| prep.region(&prep.input_id(t, e, col));
         for (ci, (col, bytes)) in cols.iter().zip(&images).enumerate() {
             let entry = image_entry(prep, t, ci, col, &proto);
             w.images(
@@ -349,18 +369,12 @@ fn write_replicas(w: &mut RunFiles, prep: &Prepared) -> Result<()> {
                 &prep.formats,
                 bytes,
                 &entry,
+                readers.first().map(|&e| copy(e, col)),
             )?;
         }
-        if prep.spec.output.channel_images {
-            for ch in prep.engine_channels() {
-                let e = prep
-                    .engines
-                    .iter()
-                    .position(|p| p.channel == ch)
-                    .expect("an engine");
-                for (col, bytes) in cols.iter().zip(&images) {
-                    w.channel_segment(prep.region(&prep.input_id(t, e, col)), bytes)?;
-                }
+        for &e in readers.iter().skip(1) {
+            for (col, bytes) in cols.iter().zip(&images) {
+                w.channel_segment(copy(e, col), bytes)?;
             }
         }
         if prep.spec.output.typed_npy {
@@ -414,6 +428,7 @@ fn write_goldens(w: &mut RunFiles, prep: &Prepared, e: usize, outputs: &[Golden]
             &prep.formats,
             &o.bytes,
             &proto,
+            None,
         )?;
     }
     if !prep.spec.output.typed_npy {
