@@ -71,7 +71,7 @@ impl SgdGen {
             .into_par_iter()
             .map(|b| self.block(b, &w))
             .collect();
-        let mut x = Vec::with_capacity(n * d);
+        let mut x = crate::kernels::hints::huge_vec(n * d);
         let mut y = Vec::with_capacity(n);
         for (bx, by) in blocks {
             x.extend(bx);
