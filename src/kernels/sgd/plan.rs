@@ -271,6 +271,10 @@ impl Kernel for SgdKernel {
         })
     }
 
+    fn host_variant(&self) -> &'static str {
+        crate::kernels::isa::Isa::detect().name()
+    }
+
     fn summary(&self, runs: &[(u64, u64)]) -> Vec<String> {
         let epochs = runs.iter().map(|r| r.1).max().unwrap_or(0);
         vec![format!(
