@@ -96,7 +96,7 @@ fn print_summary(dir: &Path, s: &RunSummary) {
         0.0
     };
     say!(
-        "host: kernel {:.3} s over {} ({gbps:.2} GB/s, {}, {} threads); generate {:.3} s; write {:.3} s",
+        "host: kernel {:.3} s over {} of device reads ({gbps:.2} GB/s, {}, {} threads); generate {:.3} s; write {:.3} s",
         s.kernel_s,
         human_bytes(s.input_bytes),
         s.isa,

@@ -17,7 +17,7 @@ use crate::job::files::RunFiles;
 use crate::job::outdir::OutDir;
 use crate::job::prepare::{InputTable, Prepared};
 use crate::kernels::seam::{Arrays, EngineCtx, EngineRun, EngineTable, Golden, Share};
-use crate::ledger::{Direction, Ledger};
+use crate::ledger::{Direction, Ledger, Region};
 use crate::manifest::{
     FieldEntry, FileEntry, Manifest, Role, MANIFEST_FILE, MANIFEST_FORMAT_VERSION,
 };
@@ -516,7 +516,9 @@ fn summarize(
     let runs: Vec<(u64, u64)> = parts.iter().map(|p| (p.rows, p.records)).collect();
     RunSummary {
         files,
-        input_bytes: ledger.sum(|k| k.direction == Direction::Read).bytes,
+        input_bytes: ledger
+            .sum(|k| k.direction == Direction::Read && k.region == Region::Device)
+            .bytes,
         requested: requested_selectivity(prep),
         kernel_lines: prep.kernel.summary(&runs),
         ledger,
