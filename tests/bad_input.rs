@@ -18,6 +18,9 @@ const CSV_JOB: &str = "[input]\ntable = \"t\"\ncsv = \"t.csv\"\n[[input.columns]
 /// A job reading the `.npy` or `.bin` column file `c.FILE`.
 const FILE_JOB: &str = "[input]\ntable = \"t\"\n[[input.columns]]\nname = \"c\"\ntype = \"u32\"\nfile = \"FILE\"\n[kernel]\nname = \"scan\"\npredicate = \"c < 3\"\n";
 
+/// A small SGD job: 64 generated samples of 3 features, row-major, two engines.
+const SGD_JOB: &str = "[tables.s]\nrows = 64\ngenerator = \"samples\"\n[tables.s.samples]\nfeatures = 3\n[layout]\npartitions = 2\norder = \"row\"\n[kernel]\nname = \"sgd\"\ntable = \"s\"\nbatch = 8\nstep = 0.1\n";
+
 /// What a row sets up before running weir.
 enum Setup {
     /// Files written into the directory (relative path, bytes).
@@ -330,6 +333,17 @@ fn rows() -> Vec<Row> {
         cmd_row("check: a huge record_bytes", Setup::Run(|r| set_manifest(r, "record_bytes", "18446744073709551615")), &["check", "run", "run"], 2, "does not give its payload_bytes"),
         cmd_row("check: a huge records count", Setup::Run(|r| set_manifest(r, "records", "18446744073709551615")), &["check", "run", "run"], 2, "records 18446744073709551615 × record_bytes 4"),
         cmd_row("check: a dump word wider than the word", Setup::Run(|r| std::fs::write(r.join("../scan.p0.out.hex"), "123456789abcdef01\n").unwrap()), &["check", "run", "scan.p0.out.hex"], 2, "line 1"),
+        job_row(
+            "sgd: a replicated dataset larger than a channel (checked before it is generated)",
+            SGD_JOB.replace("rows = 64", "rows = 17179869184"),
+            &[],
+            2,
+            "are replicated on every engine channel but do not fit one channel of 256 MiB",
+        ),
+        job_row("sgd: a minibatch larger than the dataset", SGD_JOB.replace("batch = 8", "batch = 65"), &[], 2, "kernel.batch: minibatch size 65 must be within 1..=64"),
+        job_row("sgd: a list of steps for averaging engines", SGD_JOB.replace("step = 0.1", "step = [0.1, 0.2]\nengines = \"averaging\""), &[], 2, "averaging engines share one step"),
+        job_row("sgd: an f32 table in fixed point", SGD_JOB.replace("batch = 8", "batch = 8\nnumeric = \"fixed\""), &[], 2, "the fixed mode reads i16 with q = \"Q3.12\""),
+        job_row("sgd: samples in a Q format wider than 24 bits", SGD_JOB.replace("features = 3", "features = 3\nq = \"Q7.24\""), &[], 2, "samples.q = Q7.24: at most 24 bits"),
         cmd_row("check: a newer manifest format", Setup::Run(|r| {
             let p = r.join("manifest.json");
             std::fs::write(&p, read(&p).replacen("\"format_version\": 1", "\"format_version\": 99", 1)).unwrap();

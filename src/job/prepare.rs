@@ -269,6 +269,9 @@ pub fn prepare(spec: &JobSpec, job_dir: &Path) -> Result<Prepared> {
             )?),
         };
         let q = found[k].4.clone();
+        if u.share == Share::Replicated {
+            check_replica_fits(&name, &schema, source.rows(), l.channel_mib)?;
+        }
         let whole = (u.share == Share::Replicated).then(|| source.rows_of(0..source.rows()));
         tables.push(InputTable {
             name,
@@ -304,6 +307,26 @@ fn image_formats(names: &[String]) -> Result<Vec<ImageFormat>> {
             ))),
         })
         .collect()
+}
+
+/// A replicated table is held whole (and copied to every engine channel), so it must fit
+/// one channel: checked before a row of it is generated.
+fn check_replica_fits(
+    name: &str,
+    schema: &[(String, ElemType)],
+    rows: u64,
+    channel_mib: u64,
+) -> Result<()> {
+    let bytes = schema
+        .iter()
+        .try_fold(0u64, |a, (_, ty)| a.checked_add(table::byte_len(*ty, rows)));
+    let room = channel_mib.saturating_mul(1 << 20);
+    match bytes {
+        Some(b) if b <= room => Ok(()),
+        _ => Err(Error::input(format!(
+            "table `{name}`: {rows} rows are replicated on every engine channel but do not fit one channel of {channel_mib} MiB (layout.channel_mib)"
+        ))),
+    }
 }
 
 /// The schema of a table: its files', the telemetry or samples generator's, or the listed

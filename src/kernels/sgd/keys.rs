@@ -358,12 +358,20 @@ impl SgdConfig {
             snapshots: self.snapshots as usize,
             pad_records: false,
         };
-        // Everything but the data's values can be checked now, on a stand-in of zeros.
+        if rows == 0 || params.batch == 0 || params.batch > rows {
+            return Err(bad(
+                "batch",
+                format!("minibatch size {} must be within 1..={rows}", self.batch),
+            ));
+        }
+        // Everything else but the data's values is checked now, on a one-row stand-in
+        // (with a minibatch of one row) so no memory is spent on the table's size.
         let probe = SgdData {
-            features: ndarray::Array2::zeros((rows, table.columns.len() - 1)),
-            labels: ndarray::Array1::from_elem(rows, 1.0),
+            features: ndarray::Array2::zeros((1, table.columns.len() - 1)),
+            labels: ndarray::Array1::from_elem(1, 1.0),
         };
         let mut check = params.clone();
+        check.batch = 1;
         if let Some(h) = self.hyper(0) {
             check.engines = match check.engines {
                 EngineMode::Independent { .. } => EngineMode::Independent { sweep: vec![h] },
