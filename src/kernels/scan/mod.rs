@@ -143,12 +143,54 @@ pub struct ScanResult {
     pub ledger: Ledger,
 }
 
+/// Bytes of ids a piece keeps in its own buffer before it defers the rest of its words:
+/// small enough that the pieces of a chunk stay in cache until they are copied into the
+/// output, large enough that a sparse scan (1 % of a chunk) never defers.
+pub const PIECE_BYTES: usize = 16 << 10;
+
+/// The output of one bucket of a chunk's mask visit: bytes written as the masks arrive,
+/// then, for `u32` row ids past [`PIECE_BYTES`], words whose ids are written later
+/// straight into the output region (kept in [`ScanBuffers`]' masks).
+#[derive(Debug, Default)]
+struct Piece {
+    /// The bytes written during the visit.
+    bytes: Vec<u8>,
+    /// The chunk's word indices whose ids follow `bytes`, once the piece defers.
+    deferred: Option<std::ops::Range<usize>>,
+    /// Set bits of the deferred words.
+    deferred_ids: usize,
+}
+
+impl Piece {
+    fn clear(&mut self) {
+        self.bytes.clear();
+        self.deferred = None;
+        self.deferred_ids = 0;
+    }
+
+    /// Output bytes of the piece.
+    fn len(&self) -> usize {
+        self.bytes.len() + 4 * self.deferred_ids
+    }
+
+    /// Keeps mask word `i` of the chunk for later (`masks` is the chunk's).
+    #[inline(always)]
+    fn defer(&mut self, masks: &mut [u64], i: usize, m: u64) {
+        let d = self.deferred.get_or_insert(i..i);
+        d.end = i + 1;
+        masks[i] = m;
+        self.deferred_ids += m.count_ones() as usize;
+    }
+}
+
 /// Reusable buffers of a scan. A caller that scans repeatedly (a benchmark, a service)
 /// keeps one, so the outputs' memory is not fresh (and page-faulted) on every scan.
 #[derive(Debug, Default)]
 pub struct ScanBuffers {
     /// One output per (chunk, bucket of the mask visit), in row order.
-    pieces: Vec<[Vec<u8>; mask::BUCKETS]>,
+    pieces: Vec<[Piece; mask::BUCKETS]>,
+    /// The deferred mask words, at their word index in the partition.
+    masks: Vec<u64>,
     /// The last scan's output region bytes.
     pub out: Vec<u8>,
 }
@@ -180,19 +222,17 @@ pub fn scan_partition(
     }
 }
 
-/// Visits the mask words of rows `r` and calls `put(bucket output, word index in chunk,
-/// mask word)` for every word; returns the match count.
-#[allow(clippy::too_many_arguments)]
+/// Visits the mask words of rows `r` and calls `put(piece, word index in chunk, mask
+/// word)` for every word; returns the match count.
 #[inline(always)]
 fn visit_words(
     isa: Isa,
     table: &Table,
     params: &ScanParams,
     r: std::ops::Range<usize>,
-    masks: &mut Vec<u64>,
-    scratch: &mut mask::Scratch,
-    buckets: &mut [Vec<u8>; mask::BUCKETS],
-    mut put: impl FnMut(&mut Vec<u8>, usize, u64),
+    (masks, scratch): &mut (Vec<u64>, mask::Scratch),
+    pieces: &mut [Piece; mask::BUCKETS],
+    mut put: impl FnMut(&mut Piece, usize, u64),
 ) -> u64 {
     let mut count = 0u64;
     mask::visit(
@@ -204,77 +244,70 @@ fn visit_words(
         scratch,
         &mut |k, i, m| {
             count += u64::from(m.count_ones());
-            put(&mut buckets[k], i, m);
+            put(&mut pieces[k], i, m);
         },
     );
     count
 }
 
-/// Like [`visit_words`], calling `put(bucket output, row in chunk)` for every matching row.
-#[allow(clippy::too_many_arguments)]
+/// Like [`visit_words`], calling `put(piece bytes, row in chunk)` for every matching row.
 #[inline(always)]
 fn visit_matches(
     isa: Isa,
     table: &Table,
     params: &ScanParams,
     r: std::ops::Range<usize>,
-    masks: &mut Vec<u64>,
-    scratch: &mut mask::Scratch,
-    buckets: &mut [Vec<u8>; mask::BUCKETS],
+    worker: &mut (Vec<u64>, mask::Scratch),
+    pieces: &mut [Piece; mask::BUCKETS],
     mut put: impl FnMut(&mut Vec<u8>, usize),
 ) -> u64 {
-    let put_word = |out: &mut Vec<u8>, i: usize, m: u64| {
-        for_each_match(&[m], |j| put(out, 64 * i + j as usize))
+    let put_word = |p: &mut Piece, i: usize, m: u64| {
+        for_each_match(&[m], |j| put(&mut p.bytes, 64 * i + j as usize))
     };
-    visit_words(isa, table, params, r, masks, scratch, buckets, put_word)
+    visit_words(isa, table, params, r, worker, pieces, put_word)
 }
 
-/// Scans rows `r` (one chunk) into its bucket outputs; returns the match count. Matches
-/// are written as the mask words arrive, while the next data is in flight.
+/// Scans rows `r` (one chunk, whose deferred words go to `masks`) into its pieces;
+/// returns the match count. Matches are written as the mask words arrive, while the next
+/// data is in flight, until a piece of `u32` ids is full (see [`Piece`]).
 fn scan_chunk(
     isa: Isa,
     table: &Table,
     params: &ScanParams,
     r: std::ops::Range<usize>,
     id_base: u64,
-    (masks, scratch): &mut (Vec<u64>, mask::Scratch),
-    buckets: &mut [Vec<u8>; mask::BUCKETS],
+    worker: &mut (Vec<u64>, mask::Scratch),
+    pieces: &mut [Piece; mask::BUCKETS],
+    masks: &mut [u64],
 ) -> u64 {
-    buckets.iter_mut().for_each(Vec::clear);
+    pieces.iter_mut().for_each(Piece::clear);
     let base = id_base + r.start as u64;
     match &params.output {
         ScanOutput::Bitmap => {
-            let mut words = vec![0u64; r.len().div_ceil(64)];
-            let mut count = 0u64;
-            mask::visit(
-                isa,
-                &params.predicate,
-                table,
-                r.clone(),
-                masks,
-                scratch,
-                &mut |_, i, m| {
-                    count += u64::from(m.count_ones());
-                    words[i] = m;
-                },
-            );
-            buckets[0].extend(words.iter().flat_map(|m| m.to_le_bytes()));
-            buckets[0].truncate(r.len().div_ceil(8));
+            let bytes = r.len().div_ceil(8);
+            let put = |_: &mut Piece, i: usize, m: u64| masks[i] = m;
+            let count = visit_words(isa, table, params, r, worker, pieces, put);
+            let words = masks.iter().flat_map(|m| m.to_le_bytes());
+            pieces[0].bytes.extend(words.take(bytes));
             count
         }
         ScanOutput::RowIds if params.wide_ids => {
             let put = |out: &mut Vec<u8>, row: usize| {
                 out.extend_from_slice(&(base + row as u64).to_le_bytes())
             };
-            visit_matches(isa, table, params, r, masks, scratch, buckets, put)
+            visit_matches(isa, table, params, r, worker, pieces, put)
         }
         ScanOutput::RowIds => {
             // The job chooses u32 ids only when every row id fits (and a chunk is whole
             // mask words, so the last word's ids fit too).
-            let put = |out: &mut Vec<u8>, i: usize, m: u64| {
-                compact::push_ids_u32(out, (base + 64 * i as u64) as u32, m)
+            let put = |p: &mut Piece, i: usize, m: u64| {
+                if p.deferred.is_none() && p.bytes.len() < PIECE_BYTES {
+                    compact::push_ids_u32(&mut p.bytes, (base + 64 * i as u64) as u32, m)
+                } else {
+                    p.defer(masks, i, m)
+                }
             };
-            visit_words(isa, table, params, r, masks, scratch, buckets, put)
+            visit_words(isa, table, params, r, worker, pieces, put)
         }
         ScanOutput::Project(cols) => {
             let start = r.start;
@@ -283,16 +316,32 @@ fn scan_chunk(
                     column_bytes(&table.columns[c], start + row..start + row + 1, out);
                 }
             };
-            visit_matches(isa, table, params, r, masks, scratch, buckets, put)
+            visit_matches(isa, table, params, r, worker, pieces, put)
         }
+    }
+}
+
+/// Writes a chunk's output into `out` (exactly its length): each piece's bytes, then the
+/// ids of its deferred words (`masks` is the chunk's, `base` the id of its first row).
+fn place_chunk(isa: Isa, pieces: &[Piece], masks: &[u64], base: u64, mut out: &mut [u8]) {
+    for p in pieces {
+        let (head, tail) = std::mem::take(&mut out).split_at_mut(p.len());
+        let (bytes, ids) = head.split_at_mut(p.bytes.len());
+        bytes.copy_from_slice(&p.bytes);
+        if let Some(d) = &p.deferred {
+            let first = (base + 64 * d.start as u64) as u32;
+            compact::write_ids_u32(isa, &masks[d.clone()], first, ids);
+        }
+        out = tail;
     }
 }
 
 /// Scans one partition into `bufs.out`; returns the match count and the ledger.
 ///
-/// Chunks of rows are scanned in parallel, each into its own outputs (kept in `bufs`
-/// between scans); then the outputs are copied, in parallel, into their places in
-/// `bufs.out`, known from their lengths. Both steps keep chunk order.
+/// Chunks of rows are scanned in parallel, each into its own pieces (kept in `bufs`
+/// between scans); then each chunk, in parallel, copies its pieces and writes its
+/// deferred ids into its place in `bufs.out`, known from the pieces' lengths. Both steps
+/// keep chunk order.
 pub fn scan_partition_into(
     isa: Isa,
     table: &Table,
@@ -309,28 +358,44 @@ pub fn scan_partition_into(
     if bufs.pieces.len() < n {
         bufs.pieces.resize_with(n, Default::default);
     }
-    let passes: Vec<(u64, Traffic)> = bufs.pieces[..n]
+    let words = rows.div_ceil(64);
+    if bufs.masks.len() < words {
+        // Zeroed fresh memory, so pages no chunk defers to are never touched.
+        bufs.masks = vec![0; words];
+    }
+    let pieces = &mut bufs.pieces[..n];
+    let masks = &mut bufs.masks[..words];
+    let passes: Vec<(u64, Traffic)> = pieces
         .par_iter_mut()
+        .zip(masks.par_chunks_mut(chunk / 64))
         .enumerate()
-        .map_init(Default::default, |worker, (c, buckets)| {
+        .map_init(Default::default, |worker, (c, (pieces, masks))| {
             let r = c * chunk..((c + 1) * chunk).min(rows);
-            let count = scan_chunk(isa, table, params, r.clone(), id_base, worker, buckets);
+            let count = scan_chunk(isa, table, params, r.clone(), id_base, worker, pieces, masks);
             (count, chunk_reads(table, &cols, io, r))
         })
         .collect();
     let count: u64 = passes.iter().map(|p| p.0).sum();
-    let pieces: Vec<&Vec<u8>> = bufs.pieces[..n].iter().flatten().collect();
-    set_len(&mut bufs.out, pieces.iter().map(|p| p.len()).sum());
-    let mut slices = Vec::with_capacity(pieces.len());
+    let lens: Vec<usize> = pieces
+        .iter()
+        .map(|ps| ps.iter().map(Piece::len).sum())
+        .collect();
+    set_len(&mut bufs.out, lens.iter().sum());
+    let mut places = Vec::with_capacity(n);
     let mut rest: &mut [u8] = &mut bufs.out;
-    for p in &pieces {
-        let (head, tail) = std::mem::take(&mut rest).split_at_mut(p.len());
-        slices.push((head, *p));
+    for &len in &lens {
+        let (head, tail) = std::mem::take(&mut rest).split_at_mut(len);
+        places.push(head);
         rest = tail;
     }
-    slices
+    places
         .into_par_iter()
-        .for_each(|(dst, src)| dst.copy_from_slice(src));
+        .zip(pieces.par_iter())
+        .zip(masks.par_chunks(chunk / 64))
+        .enumerate()
+        .for_each(|(c, ((out, pieces), masks))| {
+            place_chunk(isa, pieces, masks, id_base + (c * chunk) as u64, out)
+        });
     let mut ledger = Ledger::new();
     let mut read = Traffic::default();
     for (_, t) in &passes {
