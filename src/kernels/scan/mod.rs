@@ -143,18 +143,31 @@ pub struct ScanResult {
     pub ledger: Ledger,
 }
 
-/// Bytes of ids a piece keeps in its own buffer before it defers the rest of its words:
-/// small enough that the pieces of a chunk stay in cache until they are copied into the
-/// output, large enough that a sparse scan (1 % of a chunk) never defers.
-pub const PIECE_BYTES: usize = 16 << 10;
+/// The most bytes of ids a piece keeps in its own buffer (see [`Piece`]): its whole share
+/// of a chunk at a few percent selectivity, and little enough to stay in cache until it
+/// is copied into the output.
+pub const PIECE_BYTES: usize = 32 << 10;
 
-/// The output of one bucket of a chunk's mask visit: bytes written as the masks arrive,
-/// then, for `u32` row ids past [`PIECE_BYTES`], words whose ids are written later
-/// straight into the output region (kept in [`ScanBuffers`]' masks).
+/// A piece defers once more than one row in this many has matched (and
+/// [`DENSE_SLACK_IDS`] more, so a dense start of a sparse run does not): denser pieces
+/// cost less to compact later from their masks (1 bit a row) than to write now and copy
+/// (32 bits a match, twice).
+pub const DENSE_ROWS_PER_ID: usize = 32;
+
+/// See [`DENSE_ROWS_PER_ID`].
+pub const DENSE_SLACK_IDS: usize = 256;
+
+/// The output of one bucket of a chunk's mask visit: `u32` row ids of sparse rows are
+/// written as the masks arrive, while the next data is in flight; once the bucket is
+/// dense (see [`DENSE_ROWS_PER_ID`], [`PIECE_BYTES`]), the rest of its words are kept as
+/// masks (in [`ScanBuffers`]) and their ids written later straight into the output
+/// region, so each is written once. Other outputs never defer.
 #[derive(Debug, Default)]
 struct Piece {
     /// The bytes written during the visit.
     bytes: Vec<u8>,
+    /// Mask words visited.
+    words: usize,
     /// The chunk's word indices whose ids follow `bytes`, once the piece defers.
     deferred: Option<std::ops::Range<usize>>,
     /// Set bits of the deferred words.
@@ -164,6 +177,7 @@ struct Piece {
 impl Piece {
     fn clear(&mut self) {
         self.bytes.clear();
+        self.words = 0;
         self.deferred = None;
         self.deferred_ids = 0;
     }
@@ -173,9 +187,16 @@ impl Piece {
         self.bytes.len() + 4 * self.deferred_ids
     }
 
-    /// Keeps mask word `i` of the chunk for later (`masks` is the chunk's).
+    /// Takes `u32` row id word `i` of the chunk (mask `m`, first id `base`): writes its
+    /// ids while the piece is sparse, else keeps the word in the chunk's `masks`.
     #[inline(always)]
-    fn defer(&mut self, masks: &mut [u64], i: usize, m: u64) {
+    fn put_ids_u32(&mut self, masks: &mut [u64], i: usize, base: u32, m: u64) {
+        self.words += 1;
+        let ids = self.bytes.len() / 4;
+        let sparse = ids <= 64 * self.words / DENSE_ROWS_PER_ID + DENSE_SLACK_IDS;
+        if self.deferred.is_none() && sparse && self.bytes.len() < PIECE_BYTES {
+            return compact::push_ids_u32(&mut self.bytes, base, m);
+        }
         let d = self.deferred.get_or_insert(i..i);
         d.end = i + 1;
         masks[i] = m;
@@ -301,11 +322,7 @@ fn scan_chunk(
             // The job chooses u32 ids only when every row id fits (and a chunk is whole
             // mask words, so the last word's ids fit too).
             let put = |p: &mut Piece, i: usize, m: u64| {
-                if p.deferred.is_none() && p.bytes.len() < PIECE_BYTES {
-                    compact::push_ids_u32(&mut p.bytes, (base + 64 * i as u64) as u32, m)
-                } else {
-                    p.defer(masks, i, m)
-                }
+                p.put_ids_u32(masks, i, (base + 64 * i as u64) as u32, m)
             };
             visit_words(isa, table, params, r, worker, pieces, put)
         }
