@@ -316,7 +316,11 @@ mod tests {
     #[test]
     fn write_refuses_an_output_of_the_wrong_length() {
         for isa in Isa::available() {
-            for (masks, len) in [(vec![3u64], 4), (vec![3], 12), (vec![u64::MAX; 40], 4 * 64 * 40 - 4)] {
+            for (masks, len) in [
+                (vec![3u64], 4),
+                (vec![3], 12),
+                (vec![u64::MAX; 40], 4 * 64 * 40 - 4),
+            ] {
                 let r = std::panic::catch_unwind(move || {
                     write_ids_u32(isa, &masks, 0, &mut vec![0u8; len]);
                 });

@@ -216,16 +216,6 @@ pub struct ScanBuffers {
     pub out: Vec<u8>,
 }
 
-/// Sets `v` to `len` bytes, keeping (not clearing) what is there: the caller overwrites
-/// every byte, so only growth needs filling.
-fn set_len(v: &mut Vec<u8>, len: usize) {
-    if v.len() < len {
-        v.resize(len, 0);
-    } else {
-        v.truncate(len);
-    }
-}
-
 /// Scans one partition (`table` holds just its rows; `row_start` is its first global row).
 pub fn scan_partition(
     isa: Isa,
@@ -353,12 +343,85 @@ fn place_chunk(isa: Isa, pieces: &[Piece], masks: &[u64], base: u64, mut out: &m
     }
 }
 
+/// Scans the chunks of one group (the first starting at row `r.start`, none past
+/// `r.end`) in parallel; returns each chunk's match count and reads.
+#[allow(clippy::too_many_arguments)]
+fn scan_group(
+    isa: Isa,
+    table: &Table,
+    params: &ScanParams,
+    io: &EngineIo,
+    cols: &[usize],
+    chunk: usize,
+    r: std::ops::Range<usize>,
+    id_base: u64,
+    pieces: &mut [[Piece; mask::BUCKETS]],
+    masks: &mut [u64],
+) -> Vec<(u64, Traffic)> {
+    pieces
+        .par_iter_mut()
+        .zip(masks.par_chunks_mut(chunk / 64))
+        .enumerate()
+        .map_init(Default::default, |worker, (c, (pieces, masks))| {
+            let rc = r.start + c * chunk..(r.start + (c + 1) * chunk).min(r.end);
+            let count = scan_chunk(
+                isa,
+                table,
+                params,
+                rc.clone(),
+                id_base,
+                worker,
+                pieces,
+                masks,
+            );
+            (count, chunk_reads(table, cols, io, rc))
+        })
+        .collect()
+}
+
+/// Places the chunks of one group (the first is chunk `first`) into `out`, exactly
+/// their output, in parallel.
+fn place_group(
+    isa: Isa,
+    chunk: usize,
+    id_base: u64,
+    first: usize,
+    pieces: &[[Piece; mask::BUCKETS]],
+    masks: &[u64],
+    out: &mut [u8],
+) {
+    let mut places = Vec::with_capacity(pieces.len());
+    let mut rest = out;
+    for ps in pieces {
+        let len = ps.iter().map(Piece::len).sum();
+        let (head, tail) = std::mem::take(&mut rest).split_at_mut(len);
+        places.push(head);
+        rest = tail;
+    }
+    places
+        .into_par_iter()
+        .zip(pieces.par_iter())
+        .zip(masks.par_chunks(chunk / 64))
+        .enumerate()
+        .for_each(|(c, ((out, pieces), masks))| {
+            let base = id_base + ((first + c) * chunk) as u64;
+            place_chunk(isa, pieces, masks, base, out)
+        });
+}
+
+/// Groups of chunks the scan of a partition is pipelined in (see
+/// [`scan_partition_into`]): with more, less of the last group's placing is left
+/// without a scan beside it.
+pub const GROUPS: usize = 8;
+
 /// Scans one partition into `bufs.out`; returns the match count and the ledger.
 ///
 /// Chunks of rows are scanned in parallel, each into its own pieces (kept in `bufs`
 /// between scans); then each chunk, in parallel, copies its pieces and writes its
-/// deferred ids into its place in `bufs.out`, known from the pieces' lengths. Both steps
-/// keep chunk order.
+/// deferred ids into its place in `bufs.out`, known from the lengths of the pieces before
+/// it. The chunks go in [`GROUPS`] groups, and a group is placed while the next one is
+/// scanned, so the compaction of deferred ids runs while the next rows stream in. Both
+/// steps keep chunk order.
 pub fn scan_partition_into(
     isa: Isa,
     table: &Table,
@@ -380,39 +443,52 @@ pub fn scan_partition_into(
         // Zeroed fresh memory, so pages no chunk defers to are never touched.
         bufs.masks = vec![0; words];
     }
-    let pieces = &mut bufs.pieces[..n];
-    let masks = &mut bufs.masks[..words];
-    let passes: Vec<(u64, Traffic)> = pieces
-        .par_iter_mut()
-        .zip(masks.par_chunks_mut(chunk / 64))
-        .enumerate()
-        .map_init(Default::default, |worker, (c, (pieces, masks))| {
-            let r = c * chunk..((c + 1) * chunk).min(rows);
-            let count = scan_chunk(isa, table, params, r.clone(), id_base, worker, pieces, masks);
-            (count, chunk_reads(table, &cols, io, r))
-        })
-        .collect();
-    let count: u64 = passes.iter().map(|p| p.0).sum();
-    let lens: Vec<usize> = pieces
-        .iter()
-        .map(|ps| ps.iter().map(Piece::len).sum())
-        .collect();
-    set_len(&mut bufs.out, lens.iter().sum());
-    let mut places = Vec::with_capacity(n);
-    let mut rest: &mut [u8] = &mut bufs.out;
-    for &len in &lens {
-        let (head, tail) = std::mem::take(&mut rest).split_at_mut(len);
-        places.push(head);
-        rest = tail;
-    }
-    places
-        .into_par_iter()
-        .zip(pieces.par_iter())
-        .zip(masks.par_chunks(chunk / 64))
-        .enumerate()
-        .for_each(|(c, ((out, pieces), masks))| {
-            place_chunk(isa, pieces, masks, id_base + (c * chunk) as u64, out)
+    let group = n.div_ceil(GROUPS).max(1);
+    let mut piece_groups = bufs.pieces[..n].chunks_mut(group);
+    let mut mask_groups = bufs.masks[..words].chunks_mut(group * chunk / 64);
+    let out = &mut bufs.out;
+    let mut passes: Vec<(u64, Traffic)> = Vec::with_capacity(n);
+    let mut placed = 0;
+    let mut scanned = None;
+    for g in 0..=n.div_ceil(group) {
+        let place = scanned.take().map(|(first, pieces, masks)| {
+            let len: usize = (pieces as &[[Piece; mask::BUCKETS]])
+                .iter()
+                .flatten()
+                .map(Piece::len)
+                .sum();
+            if out.len() < placed + len {
+                out.resize(placed + len, 0);
+            }
+            let dst = &mut out[placed..placed + len];
+            placed += len;
+            (first, pieces, masks, dst)
         });
+        let next = piece_groups.next().zip(mask_groups.next());
+        let (_, done) = rayon::join(
+            || {
+                if let Some((first, pieces, masks, dst)) = place {
+                    place_group(isa, chunk, id_base, first, pieces, masks, dst)
+                }
+            },
+            || {
+                next.map(|(pieces, masks)| {
+                    let first = g * group;
+                    let r = first * chunk..rows;
+                    let counts = scan_group(
+                        isa, table, params, io, &cols, chunk, r, id_base, pieces, masks,
+                    );
+                    (first, pieces, masks, counts)
+                })
+            },
+        );
+        if let Some((first, pieces, masks, counts)) = done {
+            passes.extend(counts);
+            scanned = Some((first, pieces, masks));
+        }
+    }
+    out.truncate(placed);
+    let count: u64 = passes.iter().map(|p| p.0).sum();
     let mut ledger = Ledger::new();
     let mut read = Traffic::default();
     for (_, t) in &passes {
@@ -423,7 +499,7 @@ pub fn scan_partition_into(
         read,
     );
     let mut w = Cursor::new(io.out_base, io.word_bytes);
-    w.touch(bufs.out.len() as u64, count);
+    w.touch(placed as u64, count);
     let mut cw = Cursor::new(io.count_base, io.word_bytes);
     cw.touch(COUNT_BYTES, 0);
     let write_key = Key::device(io.engine, PHASE, io.channel, Direction::Write);
