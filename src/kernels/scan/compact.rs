@@ -1,12 +1,13 @@
 //! Compaction of mask words into `u32` row ids, two ways.
 //!
 //! While a chunk streams, [`push_ids_u32`] appends each word's ids to the chunk's own
-//! buffer: sparse words walk their set bits, denser ones go byte by byte through a table of
-//! bit positions, writing eight ids unconditionally and keeping as many as the byte has
-//! bits. Once a buffer is dense (see `Piece` in the parent module), the rest of its words
-//! are only kept as masks, and [`write_ids_u32`] turns them into ids later, straight into their place in the
-//! output, so dense scans write each id once instead of writing and then copying it. There
-//! the widest instruction set compresses 16 ids at a time (`vpcompressd`).
+//! buffer: sparse words walk their set bits, denser ones go byte by byte through a table
+//! of bit positions, writing eight ids unconditionally and keeping as many as the byte
+//! has bits. Once a buffer turns dense (see `Piece` in the parent module), the rest of its
+//! words are only kept as masks, and [`write_ids_u32`] turns them into ids later, straight
+//! into their place in the output, so a dense scan writes each id once instead of writing
+//! and then copying it. There the widest instruction set compresses 16 ids at a time
+//! (`vpcompressd`) and writes whole memory lines with streaming stores.
 //!
 //! ```text
 //!   mask byte 0b0010_0110 ─► POS = [1, 2, 5, _, _, _, _, _], COUNT = 3
