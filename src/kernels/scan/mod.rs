@@ -420,9 +420,9 @@ pub const GROUPS: usize = 8;
 /// Chunks of rows are scanned in parallel, each into its own pieces (kept in `bufs`
 /// between scans); then each chunk, in parallel, copies its pieces and writes its
 /// deferred ids into its place in `bufs.out`, known from the lengths of the pieces before
-/// it. The chunks go in [`GROUPS`] groups, and a group is placed while the next one is
-/// scanned, so the compaction of deferred ids runs while the next rows stream in. Both
-/// steps keep chunk order.
+/// it. When ids are deferred, the chunks go in [`GROUPS`] groups, and a group is placed
+/// while the next one is scanned, so the compaction of deferred ids runs while the next
+/// rows stream in. Both steps keep chunk order.
 pub fn scan_partition_into(
     isa: Isa,
     table: &Table,
@@ -445,45 +445,52 @@ pub fn scan_partition_into(
         bufs.masks = vec![0; words];
     }
     let group = n.div_ceil(GROUPS).max(1);
-    let mut piece_groups = bufs.pieces[..n].chunks_mut(group);
-    let mut mask_groups = bufs.masks[..words].chunks_mut(group * chunk / 64);
+    let mut rest_pieces = &mut bufs.pieces[..n];
+    let mut rest_masks = &mut bufs.masks[..words];
     let out = &mut bufs.out;
     let mut passes: Vec<(u64, Traffic)> = Vec::with_capacity(n);
     let mut placed = 0;
-    let mut scanned = None;
-    for g in 0..=n.div_ceil(group) {
-        let place = scanned.take().map(|(first, pieces, masks)| {
-            let len: usize = (pieces as &[[Piece; mask::BUCKETS]])
-                .iter()
-                .flatten()
-                .map(Piece::len)
-                .sum();
+    let mut scanned: Option<(usize, &mut [[Piece; mask::BUCKETS]], &mut [u64])> = None;
+    loop {
+        let first = passes.len();
+        // Groups only pay when there are deferred ids to place beside the scan; each
+        // group ends in a wait for its slowest chunk, so a sparse start takes the rest
+        // in one group.
+        let dense = scanned
+            .as_ref()
+            .is_none_or(|(_, ps, _)| ps.iter().flatten().any(|p| p.deferred.is_some()));
+        let take = if dense { group } else { n - first };
+        let (pieces, tail) = std::mem::take(&mut rest_pieces).split_at_mut(take.min(n - first));
+        rest_pieces = tail;
+        let mask_words = (pieces.len() * chunk / 64).min(rest_masks.len());
+        let (masks, tail) = std::mem::take(&mut rest_masks).split_at_mut(mask_words);
+        rest_masks = tail;
+        let place = scanned.take().map(|(at, pieces, masks)| {
+            let len: usize = pieces.iter().flatten().map(Piece::len).sum();
             if out.len() < placed + len {
                 out.resize(placed + len, 0);
             }
             let dst = &mut out[placed..placed + len];
             placed += len;
-            (first, pieces, masks, dst)
+            (at, pieces, masks, dst)
         });
-        let next = piece_groups.next().zip(mask_groups.next());
-        let (_, done) = rayon::join(
+        if place.is_none() && pieces.is_empty() {
+            break;
+        }
+        let (_, counts) = rayon::join(
             || {
-                if let Some((first, pieces, masks, dst)) = place {
-                    place_group(isa, chunk, id_base, first, pieces, masks, dst)
+                if let Some((at, pieces, masks, dst)) = place {
+                    place_group(isa, chunk, id_base, at, pieces, masks, dst)
                 }
             },
             || {
-                next.map(|(pieces, masks)| {
-                    let first = g * group;
-                    let r = first * chunk..rows;
-                    let counts = scan_group(
-                        isa, table, params, io, &cols, chunk, r, id_base, pieces, masks,
-                    );
-                    (first, pieces, masks, counts)
-                })
+                let r = first * chunk..rows;
+                scan_group(
+                    isa, table, params, io, &cols, chunk, r, id_base, pieces, masks,
+                )
             },
         );
-        if let Some((first, pieces, masks, counts)) = done {
+        if !pieces.is_empty() {
             passes.extend(counts);
             scanned = Some((first, pieces, masks));
         }
