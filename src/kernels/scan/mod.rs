@@ -410,6 +410,9 @@ fn place_group(
         });
 }
 
+/// A scanned group of chunks waiting to be placed: its first chunk, pieces and masks.
+type Scanned<'a> = (usize, &'a mut [[Piece; mask::BUCKETS]], &'a mut [u64]);
+
 /// Groups of chunks the scan of a partition is pipelined in (see
 /// [`scan_partition_into`]): with more, less of the last group's placing is left
 /// without a scan beside it.
@@ -450,7 +453,7 @@ pub fn scan_partition_into(
     let out = &mut bufs.out;
     let mut passes: Vec<(u64, Traffic)> = Vec::with_capacity(n);
     let mut placed = 0;
-    let mut scanned: Option<(usize, &mut [[Piece; mask::BUCKETS]], &mut [u64])> = None;
+    let mut scanned: Option<Scanned> = None;
     loop {
         let first = passes.len();
         // Groups only pay when there are deferred ids to place beside the scan; each
