@@ -143,24 +143,77 @@ pub struct ScanResult {
     pub ledger: Ledger,
 }
 
+/// The most bytes of ids a piece keeps in its own buffer (see [`Piece`]): its whole share
+/// of a chunk at a few percent selectivity, and little enough to stay in cache until it
+/// is copied into the output.
+const PIECE_BYTES: usize = 32 << 10;
+
+/// A piece defers once more than one row in this many has matched (and
+/// [`DENSE_SLACK_IDS`] more, so a dense start of a sparse run does not): denser pieces
+/// cost less to compact later from their masks (1 bit a row) than to write now and copy
+/// (32 bits a match, twice).
+const DENSE_ROWS_PER_ID: usize = 32;
+
+/// See [`DENSE_ROWS_PER_ID`].
+const DENSE_SLACK_IDS: usize = 256;
+
+/// The output of one bucket of a chunk's mask visit: `u32` row ids of sparse rows are
+/// written as the masks arrive, while the next data is in flight; once the bucket is
+/// dense (see [`DENSE_ROWS_PER_ID`], [`PIECE_BYTES`]), the rest of its words are kept as
+/// masks (in [`ScanBuffers`]) and their ids written later straight into the output
+/// region, so each is written once. Other outputs never defer.
+#[derive(Debug, Default)]
+struct Piece {
+    /// The bytes written during the visit.
+    bytes: Vec<u8>,
+    /// Mask words visited.
+    words: usize,
+    /// The chunk's word indices whose ids follow `bytes`, once the piece defers.
+    deferred: Option<std::ops::Range<usize>>,
+    /// Set bits of the deferred words.
+    deferred_ids: usize,
+}
+
+impl Piece {
+    fn clear(&mut self) {
+        self.bytes.clear();
+        self.words = 0;
+        self.deferred = None;
+        self.deferred_ids = 0;
+    }
+
+    /// Output bytes of the piece.
+    fn len(&self) -> usize {
+        self.bytes.len() + 4 * self.deferred_ids
+    }
+
+    /// Takes `u32` row id word `i` of the chunk (mask `m`, first id `base`): writes its
+    /// ids while the piece is sparse, else keeps the word in the chunk's `masks`.
+    #[inline(always)]
+    fn put_ids_u32(&mut self, masks: &mut [u64], i: usize, base: u32, m: u64) {
+        self.words += 1;
+        let ids = self.bytes.len() / 4;
+        let sparse = ids <= 64 * self.words / DENSE_ROWS_PER_ID + DENSE_SLACK_IDS;
+        if self.deferred.is_none() && sparse && self.bytes.len() < PIECE_BYTES {
+            return compact::push_ids_u32(&mut self.bytes, base, m);
+        }
+        let d = self.deferred.get_or_insert(i..i);
+        d.end = i + 1;
+        masks[i] = m;
+        self.deferred_ids += m.count_ones() as usize;
+    }
+}
+
 /// Reusable buffers of a scan. A caller that scans repeatedly (a benchmark, a service)
 /// keeps one, so the outputs' memory is not fresh (and page-faulted) on every scan.
 #[derive(Debug, Default)]
 pub struct ScanBuffers {
     /// One output per (chunk, bucket of the mask visit), in row order.
-    pieces: Vec<[Vec<u8>; mask::BUCKETS]>,
+    pieces: Vec<[Piece; mask::BUCKETS]>,
+    /// The deferred mask words, at their word index in the partition.
+    masks: Vec<u64>,
     /// The last scan's output region bytes.
     pub out: Vec<u8>,
-}
-
-/// Sets `v` to `len` bytes, keeping (not clearing) what is there: the caller overwrites
-/// every byte, so only growth needs filling.
-fn set_len(v: &mut Vec<u8>, len: usize) {
-    if v.len() < len {
-        v.resize(len, 0);
-    } else {
-        v.truncate(len);
-    }
 }
 
 /// Scans one partition (`table` holds just its rows; `row_start` is its first global row).
@@ -180,19 +233,17 @@ pub fn scan_partition(
     }
 }
 
-/// Visits the mask words of rows `r` and calls `put(bucket output, word index in chunk,
-/// mask word)` for every word; returns the match count.
-#[allow(clippy::too_many_arguments)]
+/// Visits the mask words of rows `r` and calls `put(piece, word index in chunk, mask
+/// word)` for every word; returns the match count.
 #[inline(always)]
 fn visit_words(
     isa: Isa,
     table: &Table,
     params: &ScanParams,
     r: std::ops::Range<usize>,
-    masks: &mut Vec<u64>,
-    scratch: &mut mask::Scratch,
-    buckets: &mut [Vec<u8>; mask::BUCKETS],
-    mut put: impl FnMut(&mut Vec<u8>, usize, u64),
+    (masks, scratch): &mut (Vec<u64>, mask::Scratch),
+    pieces: &mut [Piece; mask::BUCKETS],
+    mut put: impl FnMut(&mut Piece, usize, u64),
 ) -> u64 {
     let mut count = 0u64;
     mask::visit(
@@ -204,77 +255,67 @@ fn visit_words(
         scratch,
         &mut |k, i, m| {
             count += u64::from(m.count_ones());
-            put(&mut buckets[k], i, m);
+            put(&mut pieces[k], i, m);
         },
     );
     count
 }
 
-/// Like [`visit_words`], calling `put(bucket output, row in chunk)` for every matching row.
-#[allow(clippy::too_many_arguments)]
+/// Like [`visit_words`], calling `put(piece bytes, row in chunk)` for every matching row.
 #[inline(always)]
 fn visit_matches(
     isa: Isa,
     table: &Table,
     params: &ScanParams,
     r: std::ops::Range<usize>,
-    masks: &mut Vec<u64>,
-    scratch: &mut mask::Scratch,
-    buckets: &mut [Vec<u8>; mask::BUCKETS],
+    worker: &mut (Vec<u64>, mask::Scratch),
+    pieces: &mut [Piece; mask::BUCKETS],
     mut put: impl FnMut(&mut Vec<u8>, usize),
 ) -> u64 {
-    let put_word = |out: &mut Vec<u8>, i: usize, m: u64| {
-        for_each_match(&[m], |j| put(out, 64 * i + j as usize))
+    let put_word = |p: &mut Piece, i: usize, m: u64| {
+        for_each_match(&[m], |j| put(&mut p.bytes, 64 * i + j as usize))
     };
-    visit_words(isa, table, params, r, masks, scratch, buckets, put_word)
+    visit_words(isa, table, params, r, worker, pieces, put_word)
 }
 
-/// Scans rows `r` (one chunk) into its bucket outputs; returns the match count. Matches
-/// are written as the mask words arrive, while the next data is in flight.
+/// Scans rows `r` (one chunk, whose deferred words go to `masks`) into its pieces;
+/// returns the match count. Matches are written as the mask words arrive, while the next
+/// data is in flight, until a piece of `u32` ids turns dense (see [`Piece`]).
+#[allow(clippy::too_many_arguments)]
 fn scan_chunk(
     isa: Isa,
     table: &Table,
     params: &ScanParams,
     r: std::ops::Range<usize>,
     id_base: u64,
-    (masks, scratch): &mut (Vec<u64>, mask::Scratch),
-    buckets: &mut [Vec<u8>; mask::BUCKETS],
+    worker: &mut (Vec<u64>, mask::Scratch),
+    pieces: &mut [Piece; mask::BUCKETS],
+    masks: &mut [u64],
 ) -> u64 {
-    buckets.iter_mut().for_each(Vec::clear);
+    pieces.iter_mut().for_each(Piece::clear);
     let base = id_base + r.start as u64;
     match &params.output {
         ScanOutput::Bitmap => {
-            let mut words = vec![0u64; r.len().div_ceil(64)];
-            let mut count = 0u64;
-            mask::visit(
-                isa,
-                &params.predicate,
-                table,
-                r.clone(),
-                masks,
-                scratch,
-                &mut |_, i, m| {
-                    count += u64::from(m.count_ones());
-                    words[i] = m;
-                },
-            );
-            buckets[0].extend(words.iter().flat_map(|m| m.to_le_bytes()));
-            buckets[0].truncate(r.len().div_ceil(8));
+            let bytes = r.len().div_ceil(8);
+            let put = |_: &mut Piece, i: usize, m: u64| masks[i] = m;
+            let count = visit_words(isa, table, params, r, worker, pieces, put);
+            let words = masks.iter().flat_map(|m| m.to_le_bytes());
+            pieces[0].bytes.extend(words.take(bytes));
             count
         }
         ScanOutput::RowIds if params.wide_ids => {
             let put = |out: &mut Vec<u8>, row: usize| {
                 out.extend_from_slice(&(base + row as u64).to_le_bytes())
             };
-            visit_matches(isa, table, params, r, masks, scratch, buckets, put)
+            visit_matches(isa, table, params, r, worker, pieces, put)
         }
         ScanOutput::RowIds => {
             // The job chooses u32 ids only when every row id fits (and a chunk is whole
             // mask words, so the last word's ids fit too).
-            let put = |out: &mut Vec<u8>, i: usize, m: u64| {
-                compact::push_ids_u32(out, (base + 64 * i as u64) as u32, m)
+            let put = |p: &mut Piece, i: usize, m: u64| {
+                p.put_ids_u32(masks, i, (base + 64 * i as u64) as u32, m)
             };
-            visit_words(isa, table, params, r, masks, scratch, buckets, put)
+            visit_words(isa, table, params, r, worker, pieces, put)
         }
         ScanOutput::Project(cols) => {
             let start = r.start;
@@ -283,16 +324,108 @@ fn scan_chunk(
                     column_bytes(&table.columns[c], start + row..start + row + 1, out);
                 }
             };
-            visit_matches(isa, table, params, r, masks, scratch, buckets, put)
+            visit_matches(isa, table, params, r, worker, pieces, put)
         }
     }
 }
 
+/// Writes a chunk's output into `out` (exactly its length): each piece's bytes, then the
+/// ids of its deferred words (`masks` is the chunk's, `base` the id of its first row).
+fn place_chunk(isa: Isa, pieces: &[Piece], masks: &[u64], base: u64, mut out: &mut [u8]) {
+    for p in pieces {
+        let (head, tail) = std::mem::take(&mut out).split_at_mut(p.len());
+        let (bytes, ids) = head.split_at_mut(p.bytes.len());
+        bytes.copy_from_slice(&p.bytes);
+        if let Some(d) = &p.deferred {
+            let first = (base + 64 * d.start as u64) as u32;
+            compact::write_ids_u32(isa, &masks[d.clone()], first, ids);
+        }
+        out = tail;
+    }
+}
+
+/// Scans the chunks of one group (the first starting at row `r.start`, none past
+/// `r.end`) in parallel; returns each chunk's match count and reads.
+#[allow(clippy::too_many_arguments)]
+fn scan_group(
+    isa: Isa,
+    table: &Table,
+    params: &ScanParams,
+    io: &EngineIo,
+    cols: &[usize],
+    chunk: usize,
+    r: std::ops::Range<usize>,
+    id_base: u64,
+    pieces: &mut [[Piece; mask::BUCKETS]],
+    masks: &mut [u64],
+) -> Vec<(u64, Traffic)> {
+    pieces
+        .par_iter_mut()
+        .zip(masks.par_chunks_mut(chunk / 64))
+        .enumerate()
+        .map_init(Default::default, |worker, (c, (pieces, masks))| {
+            let rc = r.start + c * chunk..(r.start + (c + 1) * chunk).min(r.end);
+            let count = scan_chunk(
+                isa,
+                table,
+                params,
+                rc.clone(),
+                id_base,
+                worker,
+                pieces,
+                masks,
+            );
+            (count, chunk_reads(table, cols, io, rc))
+        })
+        .collect()
+}
+
+/// Places the chunks of one group (the first is chunk `first`) into `out`, exactly
+/// their output, in parallel.
+fn place_group(
+    isa: Isa,
+    chunk: usize,
+    id_base: u64,
+    first: usize,
+    pieces: &[[Piece; mask::BUCKETS]],
+    masks: &[u64],
+    out: &mut [u8],
+) {
+    let mut places = Vec::with_capacity(pieces.len());
+    let mut rest = out;
+    for ps in pieces {
+        let len = ps.iter().map(Piece::len).sum();
+        let (head, tail) = std::mem::take(&mut rest).split_at_mut(len);
+        places.push(head);
+        rest = tail;
+    }
+    places
+        .into_par_iter()
+        .zip(pieces.par_iter())
+        .zip(masks.par_chunks(chunk / 64))
+        .enumerate()
+        .for_each(|(c, ((out, pieces), masks))| {
+            let base = id_base + ((first + c) * chunk) as u64;
+            place_chunk(isa, pieces, masks, base, out)
+        });
+}
+
+/// A scanned group of chunks waiting to be placed: its first chunk, pieces and masks.
+type Scanned<'a> = (usize, &'a mut [[Piece; mask::BUCKETS]], &'a mut [u64]);
+
+/// Groups of chunks the scan of a partition is pipelined in (see
+/// [`scan_partition_into`]): with more, less of the last group's placing is left
+/// without a scan beside it.
+pub const GROUPS: usize = 8;
+
 /// Scans one partition into `bufs.out`; returns the match count and the ledger.
 ///
-/// Chunks of rows are scanned in parallel, each into its own outputs (kept in `bufs`
-/// between scans); then the outputs are copied, in parallel, into their places in
-/// `bufs.out`, known from their lengths. Both steps keep chunk order.
+/// Chunks of rows are scanned in parallel, each into its own pieces (kept in `bufs`
+/// between scans); then each chunk, in parallel, copies its pieces and writes its
+/// deferred ids into its place in `bufs.out`, known from the lengths of the pieces before
+/// it. When ids are deferred, the chunks go in [`GROUPS`] groups, and a group is placed
+/// while the next one is scanned, so the compaction of deferred ids runs while the next
+/// rows stream in. Both steps keep chunk order.
 pub fn scan_partition_into(
     isa: Isa,
     table: &Table,
@@ -309,28 +442,64 @@ pub fn scan_partition_into(
     if bufs.pieces.len() < n {
         bufs.pieces.resize_with(n, Default::default);
     }
-    let passes: Vec<(u64, Traffic)> = bufs.pieces[..n]
-        .par_iter_mut()
-        .enumerate()
-        .map_init(Default::default, |worker, (c, buckets)| {
-            let r = c * chunk..((c + 1) * chunk).min(rows);
-            let count = scan_chunk(isa, table, params, r.clone(), id_base, worker, buckets);
-            (count, chunk_reads(table, &cols, io, r))
-        })
-        .collect();
-    let count: u64 = passes.iter().map(|p| p.0).sum();
-    let pieces: Vec<&Vec<u8>> = bufs.pieces[..n].iter().flatten().collect();
-    set_len(&mut bufs.out, pieces.iter().map(|p| p.len()).sum());
-    let mut slices = Vec::with_capacity(pieces.len());
-    let mut rest: &mut [u8] = &mut bufs.out;
-    for p in &pieces {
-        let (head, tail) = std::mem::take(&mut rest).split_at_mut(p.len());
-        slices.push((head, *p));
-        rest = tail;
+    let words = rows.div_ceil(64);
+    if bufs.masks.len() < words {
+        // Zeroed fresh memory, so pages no chunk defers to are never touched.
+        bufs.masks = vec![0; words];
     }
-    slices
-        .into_par_iter()
-        .for_each(|(dst, src)| dst.copy_from_slice(src));
+    let group = n.div_ceil(GROUPS).max(1);
+    let mut rest_pieces = &mut bufs.pieces[..n];
+    let mut rest_masks = &mut bufs.masks[..words];
+    let out = &mut bufs.out;
+    let mut passes: Vec<(u64, Traffic)> = Vec::with_capacity(n);
+    let mut placed = 0;
+    let mut scanned: Option<Scanned> = None;
+    loop {
+        let first = passes.len();
+        // Groups only pay when there are deferred ids to place beside the scan; each
+        // group ends in a wait for its slowest chunk, so a sparse start takes the rest
+        // in one group.
+        let dense = scanned
+            .as_ref()
+            .is_none_or(|(_, ps, _)| ps.iter().flatten().any(|p| p.deferred.is_some()));
+        let take = if dense { group } else { n - first };
+        let (pieces, tail) = std::mem::take(&mut rest_pieces).split_at_mut(take.min(n - first));
+        rest_pieces = tail;
+        let mask_words = (pieces.len() * chunk / 64).min(rest_masks.len());
+        let (masks, tail) = std::mem::take(&mut rest_masks).split_at_mut(mask_words);
+        rest_masks = tail;
+        let place = scanned.take().map(|(at, pieces, masks)| {
+            let len: usize = pieces.iter().flatten().map(Piece::len).sum();
+            if out.len() < placed + len {
+                out.resize(placed + len, 0);
+            }
+            let dst = &mut out[placed..placed + len];
+            placed += len;
+            (at, pieces, masks, dst)
+        });
+        if place.is_none() && pieces.is_empty() {
+            break;
+        }
+        let (_, counts) = rayon::join(
+            || {
+                if let Some((at, pieces, masks, dst)) = place {
+                    place_group(isa, chunk, id_base, at, pieces, masks, dst)
+                }
+            },
+            || {
+                let r = first * chunk..rows;
+                scan_group(
+                    isa, table, params, io, &cols, chunk, r, id_base, pieces, masks,
+                )
+            },
+        );
+        if !pieces.is_empty() {
+            passes.extend(counts);
+            scanned = Some((first, pieces, masks));
+        }
+    }
+    out.truncate(placed);
+    let count: u64 = passes.iter().map(|p| p.0).sum();
     let mut ledger = Ledger::new();
     let mut read = Traffic::default();
     for (_, t) in &passes {
@@ -341,7 +510,7 @@ pub fn scan_partition_into(
         read,
     );
     let mut w = Cursor::new(io.out_base, io.word_bytes);
-    w.touch(bufs.out.len() as u64, count);
+    w.touch(placed as u64, count);
     let mut cw = Cursor::new(io.count_base, io.word_bytes);
     cw.touch(COUNT_BYTES, 0);
     let write_key = Key::device(io.engine, PHASE, io.channel, Direction::Write);
@@ -469,6 +638,39 @@ mod tests {
             vec![Column::new("v", ElemType::U32, ColumnData::U32(v)).unwrap()],
         )
         .unwrap()
+    }
+
+    #[test]
+    fn dense_and_sparse_row_ids_equal_the_oracle_on_every_instruction_set() {
+        // Rows whose density changes along the partition, so pieces defer at different
+        // words, in chunks spread over several groups.
+        let rows = 40 * MIN_CHUNK_ROWS as u32 + 77;
+        let v = (0..rows)
+            .map(|i| i.wrapping_mul(2_654_435_761) % 1000 + (i / 150_000) * 100)
+            .collect();
+        let t = Table::new(
+            "t",
+            vec![Column::new("v", ElemType::U32, ColumnData::U32(v)).unwrap()],
+        )
+        .unwrap();
+        for pred in ["v < 2", "v < 30", "v < 100", "v < 500", "v < 990", "v >= 0"] {
+            let predicate = compile(pred, &t.schema()).unwrap();
+            let want: Vec<u8> = naive_scan(&t, &predicate)
+                .iter()
+                .flat_map(|&r| (r as u32 + 64).to_le_bytes())
+                .collect();
+            let params = ScanParams {
+                predicate,
+                output: ScanOutput::RowIds,
+                global_ids: true,
+                wide_ids: false,
+            };
+            for isa in Isa::available() {
+                let got = scan_partition(isa, &t, 64, &params, &EngineIo::host(1));
+                assert!(got.out == want, "{pred} on {}", isa.name());
+                assert_eq!(got.count as usize, want.len() / 4);
+            }
+        }
     }
 
     #[test]
