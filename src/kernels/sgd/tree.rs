@@ -64,6 +64,14 @@ fn dot_n<T: Real, const FTZ: bool, const N: usize>(x: &[f32], w: &[T]) -> T {
             acc[l] = if l < xr.len() { s } else { acc[l] };
         }
     }
+    tree::<T, FTZ, N>(acc)
+}
+
+/// The adder tree over the lanes. Kept out of line on purpose: inlined, its pairing of
+/// neighbours leads the vectoriser to split the lane accumulators across narrow registers
+/// with shuffles on every step of the loop above; apart, the loop keeps one wide register.
+#[inline(never)]
+fn tree<T: Real, const FTZ: bool, const N: usize>(mut acc: [T; N]) -> T {
     let mut width = N;
     while width > 1 {
         for i in 0..width / 2 {
