@@ -40,8 +40,21 @@ fn fl<T: Real, const FTZ: bool>(v: T) -> T {
     }
 }
 
+/// Rows of at least this many lane groups take the adder tree out of line (see [`tree`]);
+/// shorter ones keep it inline, where a call would cost more than the loop it frees.
+const APART_FROM: usize = 4;
+
 #[inline(always)]
 fn dot_n<T: Real, const FTZ: bool, const N: usize>(x: &[f32], w: &[T]) -> T {
+    if x.len() >= APART_FROM * N {
+        lanes::<T, FTZ, N, true>(x, w)
+    } else {
+        lanes::<T, FTZ, N, false>(x, w)
+    }
+}
+
+#[inline(always)]
+fn lanes<T: Real, const FTZ: bool, const N: usize, const APART: bool>(x: &[f32], w: &[T]) -> T {
     let mut acc = [T::ZERO; N];
     let xs = x.chunks_exact(N);
     let ws = w.chunks_exact(N);
@@ -64,13 +77,23 @@ fn dot_n<T: Real, const FTZ: bool, const N: usize>(x: &[f32], w: &[T]) -> T {
             acc[l] = if l < xr.len() { s } else { acc[l] };
         }
     }
+    if APART {
+        tree_apart::<T, FTZ, N>(acc)
+    } else {
+        tree::<T, FTZ, N>(acc)
+    }
+}
+
+/// [`tree`] out of line: inlined, its pairing of neighbours leads the vectoriser to split
+/// the lane accumulators across narrow registers with shuffles on every step of the lane
+/// loop; apart, the loop keeps one wide register.
+#[inline(never)]
+fn tree_apart<T: Real, const FTZ: bool, const N: usize>(acc: [T; N]) -> T {
     tree::<T, FTZ, N>(acc)
 }
 
-/// The adder tree over the lanes. Kept out of line on purpose: inlined, its pairing of
-/// neighbours leads the vectoriser to split the lane accumulators across narrow registers
-/// with shuffles on every step of the loop above; apart, the loop keeps one wide register.
-#[inline(never)]
+/// The adder tree over the lanes: neighbours summed pairwise, level by level.
+#[inline(always)]
 fn tree<T: Real, const FTZ: bool, const N: usize>(mut acc: [T; N]) -> T {
     let mut width = N;
     while width > 1 {
