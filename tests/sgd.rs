@@ -288,23 +288,26 @@ fn thread_count_does_not_change_results() {
 
 #[test]
 fn every_instruction_set_gives_the_same_bytes() {
-    // d = 37 exercises full 16-lane chunks and a remainder.
-    let data = gen(400, 37, Labels::Regression, 9);
-    for numeric in [
-        f32_mode(),
-        Numeric::F32 {
-            lanes: 8,
-            ftz: true,
-        },
-        Numeric::F64 { lanes: 16 },
-        fixed_mode(Rounding::NearestEven),
-    ] {
-        let mut p = params(Loss::Squared, 16, numeric.clone(), 2);
-        p.order = Order::Shuffle { seed: 2 };
-        let portable = train_on(weir::kernels::isa::Isa::portable(), &data, &p, &ios(1)).unwrap();
-        for isa in weir::kernels::isa::Isa::available() {
-            let got = train_on(isa, &data, &p, &ios(1)).unwrap();
-            assert_eq!(got, portable, "{numeric:?} on {isa:?}");
+    // d = 37 and 70: full lane groups and a remainder, with the adder tree inline (fewer
+    // than four 16-lane groups) and out of line.
+    for data in [37, 70].map(|d| gen(400, d, Labels::Regression, 9)) {
+        for numeric in [
+            f32_mode(),
+            Numeric::F32 {
+                lanes: 8,
+                ftz: true,
+            },
+            Numeric::F64 { lanes: 16 },
+            fixed_mode(Rounding::NearestEven),
+        ] {
+            let mut p = params(Loss::Squared, 16, numeric.clone(), 2);
+            p.order = Order::Shuffle { seed: 2 };
+            let portable =
+                train_on(weir::kernels::isa::Isa::portable(), &data, &p, &ios(1)).unwrap();
+            for isa in weir::kernels::isa::Isa::available() {
+                let got = train_on(isa, &data, &p, &ios(1)).unwrap();
+                assert_eq!(got, portable, "{numeric:?} on {isa:?}");
+            }
         }
     }
 }
