@@ -6,7 +6,6 @@
 use serde::{Deserialize, Serialize};
 
 use super::fixed::{self, FixedSpec, Overflow, Rounding};
-use super::plan::SgdKernel;
 use super::{validate, EngineMode, Hyper, Loss, Numeric, Order, SgdData, SgdParams, Step};
 use crate::error::{Error, Result};
 use crate::kernels::seam::TableSchema;
@@ -166,6 +165,14 @@ fn eight() -> u32 {
 }
 fn independent() -> String {
     "independent".into()
+}
+
+/// SGD bound to its dataset table.
+#[derive(Debug, Clone)]
+pub struct SgdKernel {
+    pub(super) table: TableSchema,
+    pub(super) params: SgdParams,
+    pub(super) config: SgdConfig,
 }
 
 /// Longest snapshot list a job may ask for.

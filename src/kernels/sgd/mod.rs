@@ -31,13 +31,12 @@ pub mod tree;
 
 pub use engine::{train, train_engine, train_on, train_validated};
 pub use fixed::{FixedSpec, Overflow, Rounding};
-pub use keys::{PerEngine, SgdConfig};
+pub use keys::{PerEngine, SgdConfig, SgdKernel};
 pub use loss::Loss;
 pub use params::{
     validate, EngineMode, Hyper, Model, ModelElem, Numeric, Order, OverflowCounts, SgdData,
     SgdEngineResult, SgdError, SgdIo, SgdParams, Step,
 };
-pub use plan::SgdKernel;
 pub use record::record_bytes;
 
 /// Ledger phase of epoch `e`.

@@ -18,25 +18,16 @@
 use std::ops::Range;
 
 use super::fixed;
-use super::keys::SgdConfig;
+use super::keys::SgdKernel;
 use super::{
     train, train_engine, EngineMode, Model, ModelElem, Numeric, SgdData, SgdEngineResult, SgdIo,
-    SgdParams,
 };
 use crate::kernels::seam::{
     Arrays, EngineCtx, EngineRun, Field, Golden, Kernel, KernelError, MapParam, MapSection,
-    RegionNeed, Share, Sizing, TableSchema, TableUse,
+    RegionNeed, Share, Sizing, TableUse,
 };
 use crate::ledger::{Cursor, Direction, Key, Phase};
 use crate::table::{ElemType, Table};
-
-/// SGD bound to its dataset table.
-#[derive(Debug, Clone)]
-pub struct SgdKernel {
-    pub(super) table: TableSchema,
-    pub(super) params: SgdParams,
-    pub(super) config: SgdConfig,
-}
 
 /// The record field type and NumPy dtype of a model element.
 fn elem_of(e: ModelElem) -> (ElemType, &'static str) {
