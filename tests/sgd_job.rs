@@ -7,7 +7,7 @@ mod util;
 
 use std::path::Path;
 
-use weir::gen::sgd::{Labels, SgdGen};
+use weir::gen::sgd::{Labels, SamplesGen};
 use weir::kernels::sgd::*;
 use weir::table::QFormat;
 
@@ -80,7 +80,7 @@ fn the_sweep_job_writes_the_image_and_models_the_library_computes() {
     let t = TempDir::new("sgd-job-sweep");
     let out = t.join("out");
     run(&repo("data/jobs/sgd-sweep.toml"), &out, "2");
-    let data = SgdGen {
+    let data = SamplesGen {
         rows: 2048,
         dims: 16,
         seed: 11,
@@ -134,7 +134,7 @@ fn the_fixed_point_job_reads_q_records_and_averages_like_the_library() {
             assert!(da == db, "{pa} differs between 1 and 2 threads");
         }
     }
-    let data = SgdGen {
+    let data = SamplesGen {
         rows: 4096,
         dims: 7,
         seed: 12,

@@ -11,7 +11,7 @@ use rayon::prelude::*;
 use serde::Serialize;
 
 use super::stats::{summarize, Summary};
-use crate::gen::sgd::{Labels, SgdGen};
+use crate::gen::sgd::{Labels, SamplesGen};
 use crate::kernels::sgd::*;
 use crate::plot::{Chart, Series};
 
@@ -77,7 +77,7 @@ pub fn mode_name(n: &Numeric) -> String {
 
 /// The bench's dataset: `rows` samples of `dims` features, regression labels.
 pub fn bench_data(rows: u64, dims: usize) -> SgdData {
-    SgdGen {
+    SamplesGen {
         rows,
         dims,
         seed: 1,

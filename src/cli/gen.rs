@@ -123,24 +123,20 @@ pub fn sgd_npy(
 }
 
 fn gen_sgd(a: GenSgdArgs) -> Result<Outcome> {
-    use weir::gen::sgd::{Labels, SgdGen};
-    let labels = match a.labels.as_str() {
-        "regression" => Labels::Regression,
-        "logistic" => Labels::Logistic,
-        "margin" => Labels::Margin,
-        o => {
-            return Err(Error::input(format!(
-                "--labels `{o}`: expected regression, logistic or margin"
-            )))
-        }
-    };
+    use weir::gen::sgd::{Labels, SamplesGen};
+    let labels = Labels::parse(&a.labels).ok_or_else(|| {
+        Error::input(format!(
+            "--labels `{}`: expected regression, logistic or margin",
+            a.labels
+        ))
+    })?;
     if a.rows == 0 || a.dims == 0 || a.scale.iter().any(|s| !s.is_finite()) || !a.noise.is_finite()
     {
         return Err(Error::input(
             "--rows and --dims must be at least 1; --scale and --noise finite",
         ));
     }
-    let g = SgdGen {
+    let g = SamplesGen {
         rows: a.rows,
         dims: a.dims,
         seed: a.seed,

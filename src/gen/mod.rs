@@ -9,6 +9,7 @@ pub mod sgd;
 pub mod telemetry;
 
 pub use columns::{ColumnGen, Dist, Skew};
+pub use sgd::{SamplesGen, SamplesKeys};
 
 use rayon::prelude::*;
 
@@ -28,7 +29,7 @@ pub enum Shape {
     /// `f32` or, with `q`, fixed point.
     Samples {
         /// The model and noise.
-        gen: sgd::SgdGen,
+        gen: sgd::SamplesGen,
         /// Fixed-point format of every column.
         q: Option<crate::table::QFormat>,
     },

@@ -26,9 +26,87 @@ pub enum Labels {
     Margin,
 }
 
+impl Labels {
+    /// `regression`, `logistic` or `margin`.
+    pub fn parse(name: &str) -> Option<Labels> {
+        match name {
+            "regression" => Some(Labels::Regression),
+            "logistic" => Some(Labels::Logistic),
+            "margin" => Some(Labels::Margin),
+            _ => None,
+        }
+    }
+}
+
+/// Widest fixed-point sample (with the sign): values stay exact through `f32`.
+pub const MAX_SAMPLE_BITS: u32 = 24;
+
+/// The keys of a `samples` table, as the job gives them.
+#[derive(Debug, Clone, Copy)]
+pub struct SamplesKeys<'a> {
+    /// Features d.
+    pub features: u32,
+    /// Label model name.
+    pub labels: &'a str,
+    /// Noise standard deviation.
+    pub noise: f64,
+    /// True bias.
+    pub bias: f64,
+    /// Per-feature scales.
+    pub scale: &'a [f64],
+    /// Q format of every column, as text.
+    pub q: Option<&'a str>,
+}
+
+impl SamplesKeys<'_> {
+    /// The generator of `rows` samples with `seed`, and its columns' Q format; an error
+    /// names the key at fault.
+    pub fn build(&self, rows: u64, seed: u64) -> Result<(SamplesGen, Option<QFormat>), String> {
+        let labels = Labels::parse(self.labels).ok_or_else(|| {
+            format!(
+                "samples.labels: `{}` (expected regression, logistic or margin)",
+                self.labels
+            )
+        })?;
+        let finite = |v: f64| v.is_finite() && v.abs() <= 1e30;
+        if !finite(self.noise)
+            || self.noise < 0.0
+            || !finite(self.bias)
+            || !self.scale.iter().all(|&v| finite(v))
+        {
+            return Err(
+                "samples: noise (non-negative), bias and scale must be finite numbers of at most 1e30"
+                    .into(),
+            );
+        }
+        let q = match self.q {
+            None => None,
+            Some(text) => {
+                let q = crate::table::parse_q(text).map_err(|e| format!("samples.q: {e}"))?;
+                if fixed::width(q) > MAX_SAMPLE_BITS {
+                    return Err(format!(
+                        "samples.q = {text}: at most {MAX_SAMPLE_BITS} bits with the sign, so every value is exact in the f32 the trainer reads"
+                    ));
+                }
+                Some(q)
+            }
+        };
+        let gen = SamplesGen {
+            rows,
+            dims: self.features as usize,
+            seed,
+            scale: self.scale.to_vec(),
+            noise: self.noise,
+            bias: self.bias,
+            labels,
+        };
+        Ok((gen, q))
+    }
+}
+
 /// A seeded SGD dataset.
 #[derive(Debug, Clone, PartialEq)]
-pub struct SgdGen {
+pub struct SamplesGen {
     /// Samples n.
     pub rows: u64,
     /// Features d.
@@ -56,7 +134,7 @@ pub struct Generated {
     pub bias: f64,
 }
 
-impl SgdGen {
+impl SamplesGen {
     /// The true weights.
     pub fn weights(&self) -> Vec<f64> {
         let mut s = Stream::new(self.seed, "sgd", "weights", 0);
@@ -146,7 +224,7 @@ impl SgdGen {
         Table::new(name, columns).expect("generated columns have equal length")
     }
 
-    /// Column names and types of [`SgdGen::table`].
+    /// Column names and types of [`SamplesGen::table`].
     pub fn schema(&self, q: Option<QFormat>) -> Vec<(String, ElemType)> {
         let ty = match q.map(fixed::storage_bits) {
             None => ElemType::F32,

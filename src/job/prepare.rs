@@ -7,8 +7,7 @@ use std::path::Path;
 use std::sync::Arc;
 
 use crate::error::{Error, Result};
-use crate::gen::sgd::{Labels, SgdGen};
-use crate::gen::{ColumnGen, Dist, Shape, Skew, TableGen};
+use crate::gen::{ColumnGen, Dist, SamplesGen, SamplesKeys, Shape, Skew, TableGen};
 use crate::image::ImageFormat;
 use crate::job::spec::{ColumnSpec, InputSpec, JobSpec, LayoutSpec, PlacementSpec, DEFAULT_TABLE};
 use crate::kernels::seam::{Kernel, RegionNeed, Share, TableSchema};
@@ -351,53 +350,22 @@ fn table_schema(input: &InputSpec, loaded: Option<&Table>) -> Result<Vec<(String
 }
 
 /// The `samples` generator of `input` and its columns' Q format.
-fn samples_gen(input: &InputSpec) -> Result<(SgdGen, Option<QFormat>)> {
+fn samples_gen(input: &InputSpec) -> Result<(SamplesGen, Option<QFormat>)> {
     let s = input
         .samples
         .as_ref()
         .ok_or_else(|| Error::input("input: generator = \"samples\" needs a samples table"))?;
-    let labels = match s.labels.as_str() {
-        "regression" => Labels::Regression,
-        "logistic" => Labels::Logistic,
-        "margin" => Labels::Margin,
-        o => {
-            return Err(Error::input(format!(
-                "samples.labels: `{o}` (expected regression, logistic or margin)"
-            )))
-        }
-    };
-    let finite = |v: f64| v.is_finite() && v.abs() <= 1e30;
-    if !finite(s.noise) || s.noise < 0.0 || !finite(s.bias) || !s.scale.iter().all(|&v| finite(v)) {
-        return Err(Error::input(
-            "samples: noise (non-negative), bias and scale must be finite numbers of at most 1e30",
-        ));
-    }
-    let q = match &s.q {
-        None => None,
-        Some(text) => {
-            let q = table::parse_q(text).map_err(|e| Error::input(format!("samples.q: {e}")))?;
-            if crate::kernels::sgd::fixed::width(q) > MAX_SAMPLE_BITS {
-                return Err(Error::input(format!(
-                    "samples.q = {text}: at most {MAX_SAMPLE_BITS} bits with the sign, so every value is exact in the f32 the trainer reads"
-                )));
-            }
-            Some(q)
-        }
-    };
-    let gen = SgdGen {
-        rows: input.rows.unwrap_or(0),
-        dims: s.features as usize,
-        seed: input.seed,
-        scale: s.scale.clone(),
+    SamplesKeys {
+        features: s.features,
+        labels: &s.labels,
         noise: s.noise,
         bias: s.bias,
-        labels,
-    };
-    Ok((gen, q))
+        scale: &s.scale,
+        q: s.q.as_deref(),
+    }
+    .build(input.rows.unwrap_or(0), input.seed)
+    .map_err(Error::input)
 }
-
-/// Widest fixed-point sample (with the sign): values stay exact through `f32`.
-const MAX_SAMPLE_BITS: u32 = 24;
 
 /// The fixed-point format of each schema column: the job's `q`, else a CSV header's or the
 /// samples generator's.
