@@ -17,6 +17,7 @@ use super::params::*;
 use super::pass::{order, stream, Counts, Plan, Reads};
 use super::real::{self, FloatTrainer};
 use super::record::record_shape;
+use super::wide::{self, Wide};
 use crate::kernels::isa::{Isa, Level};
 use crate::ledger::{words_touched, Direction, Key, Ledger, Phase, Region, Traffic};
 
@@ -174,24 +175,33 @@ impl Engine<'_> {
                 // SAFETY: as above, for the features of the Avx2 token.
                 unsafe { self.pass_avx2(plan, share, start, c) }
             }
-            Level::Portable => self.pass_body(plan, share, start, c),
+            Level::Portable => self.pass_body(wide::Portable, plan, share, start, c),
         }
     }
 
     #[cfg(target_arch = "x86_64")]
     #[target_feature(enable = "avx512f,avx512bw,avx512vl,bmi1,bmi2,popcnt")]
     unsafe fn pass_avx512(&mut self, plan: &Plan, share: &[usize], start: usize, c: &mut Counts) {
-        self.pass_body(plan, share, start, c)
+        let v = wide::Avx512::new(plan.isa).expect("an AVX-512 token");
+        self.pass_body(v, plan, share, start, c)
     }
 
     #[cfg(target_arch = "x86_64")]
     #[target_feature(enable = "avx2,bmi1,bmi2,popcnt")]
     unsafe fn pass_avx2(&mut self, plan: &Plan, share: &[usize], start: usize, c: &mut Counts) {
-        self.pass_body(plan, share, start, c)
+        let v = wide::Avx2::new(plan.isa).expect("an AVX2 token");
+        self.pass_body(v, plan, share, start, c)
     }
 
     #[inline(always)]
-    fn pass_body(&mut self, plan: &Plan, share: &[usize], start: usize, c: &mut Counts) {
+    fn pass_body<V: Wide>(
+        &mut self,
+        v: V,
+        plan: &Plan,
+        share: &[usize],
+        start: usize,
+        c: &mut Counts,
+    ) {
         let Engine {
             trainer,
             hyper,
@@ -200,7 +210,7 @@ impl Engine<'_> {
             loss_sum,
             ..
         } = self;
-        each!(trainer, t => stream(t, plan, share, start, c, (hyper, updates, snapshots, loss_sum)))
+        each!(trainer, t => stream(t, v, plan, share, start, c, (hyper, updates, snapshots, loss_sum)))
     }
 
     fn finish(mut self, plan: &Plan) -> SgdEngineResult {

@@ -286,9 +286,7 @@ impl FixedTrainer {
     #[inline]
     pub fn prefetch(&self, r: usize) {
         let n = self.d + 1;
-        (r * n..(r + 1) * n)
-            .step_by(8)
-            .for_each(|i| crate::kernels::hints::prefetch(&self.x, i));
+        crate::kernels::hints::prefetch_all(&self.x[r * n..(r + 1) * n]);
     }
 
     /// Adds sample `r`'s gradient; returns z as a real.

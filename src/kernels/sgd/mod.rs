@@ -28,6 +28,7 @@ mod plan;
 pub mod real;
 mod record;
 pub mod tree;
+mod wide;
 
 pub use engine::{train, train_engine, train_on, train_validated};
 pub use fixed::{FixedSpec, Overflow, Rounding};

@@ -1,15 +1,17 @@
-//! One pass of one engine over its share of a block: the sample loop every trainer runs,
-//! the record-read counting, and prefetching ahead of the stream.
+//! One pass of one engine over its share of a block: the minibatch loop every trainer
+//! runs, the record-read counting, and prefetching ahead of the stream.
 //!
 //! ```text
-//!   share (sample order) ─► prefetch row of sample i + ahead
-//!                        └► read record (ledger cursor) ─► sample: z, g, G += g·x, loss
+//!   share (sample order) ─► minibatch of B ─► predictions z (prefetching rows ahead)
+//!                                          └► gradients G += g·x in sample order
+//!                        ─► record reads (ledger cursor, one span per run of rows), loss
 //!   every B samples ─► update (η_t), model traffic, snapshot (first M)
 //! ```
 
 use super::fixed::FixedTrainer;
 use super::params::*;
 use super::real::{self, FloatTrainer};
+use super::wide::Wide;
 use crate::gen::rng::Stream;
 use crate::kernels::isa::Isa;
 use crate::ledger::{words_touched, Cursor, Traffic};
@@ -73,23 +75,28 @@ impl Reads {
         }
     }
 
+    /// Counts the reads of `count` consecutive records from record `offset_rows` on.
     #[inline]
-    fn read(&mut self, offset_rows: u64) {
+    fn read(&mut self, offset_rows: u64, count: u64) {
         let addr = self.base + offset_rows * self.stride;
         if self.stride != self.payload {
-            self.done += Traffic {
-                bytes: self.payload,
-                words: words_touched(addr, self.payload, self.word_bytes),
-                rows: 1,
-            };
+            for k in 0..count {
+                self.done += Traffic {
+                    bytes: self.payload,
+                    words: words_touched(addr + k * self.stride, self.payload, self.word_bytes),
+                    rows: 1,
+                };
+            }
             return;
         }
         if self.next != Some(addr) {
             self.done +=
                 std::mem::replace(&mut self.cursor, Cursor::new(addr, self.word_bytes)).traffic;
         }
-        self.cursor.touch(self.payload, 1);
-        self.next = Some(addr + self.payload);
+        // One span of consecutive records touches the words that touching them one by one
+        // would: the cursor counts a word shared by neighbours once either way.
+        self.cursor.touch(self.payload * count, count);
+        self.next = Some(addr + self.payload * count);
     }
 
     pub(super) fn take(&mut self) -> Traffic {
@@ -103,20 +110,17 @@ impl Reads {
 /// What a trainer does per sample and per minibatch (both trainers implement it, so a
 /// pass is compiled once per trainer with no dispatch per sample).
 pub(super) trait Trains {
-    fn prefetch(&self, r: usize);
-    fn sample(&mut self, r: usize) -> f64;
+    /// Adds the gradients of the samples `mb` in order and writes their predictions to
+    /// `z`, prefetching row `ahead[i]` while sample i is read.
+    fn batch<V: Wide>(&mut self, v: V, mb: &[usize], ahead: &[usize], z: &mut [f64]);
     fn update(&mut self, eta: f64, l2: f64, batch: usize);
     fn model(&self) -> Model;
 }
 
 impl<T: real::Real, const FTZ: bool> Trains for FloatTrainer<'_, T, FTZ> {
     #[inline(always)]
-    fn prefetch(&self, r: usize) {
-        FloatTrainer::prefetch(self, r)
-    }
-    #[inline(always)]
-    fn sample(&mut self, r: usize) -> f64 {
-        FloatTrainer::sample(self, r)
+    fn batch<V: Wide>(&mut self, v: V, mb: &[usize], ahead: &[usize], z: &mut [f64]) {
+        FloatTrainer::batch(self, v, mb, ahead, z)
     }
     #[inline(always)]
     fn update(&mut self, eta: f64, l2: f64, batch: usize) {
@@ -128,13 +132,15 @@ impl<T: real::Real, const FTZ: bool> Trains for FloatTrainer<'_, T, FTZ> {
 }
 
 impl Trains for Box<FixedTrainer> {
+    /// One sample after another: stochastic rounding draws its bits in this order.
     #[inline(always)]
-    fn prefetch(&self, r: usize) {
-        FixedTrainer::prefetch(self, r)
-    }
-    #[inline(always)]
-    fn sample(&mut self, r: usize) -> f64 {
-        FixedTrainer::sample(self, r)
+    fn batch<V: Wide>(&mut self, _: V, mb: &[usize], ahead: &[usize], z: &mut [f64]) {
+        for (i, (&r, zi)) in mb.iter().zip(z.iter_mut()).enumerate() {
+            if let Some(&next) = ahead.get(i) {
+                self.prefetch(next);
+            }
+            *zi = self.sample(r);
+        }
     }
     #[inline(always)]
     fn update(&mut self, eta: f64, l2: f64, batch: usize) {
@@ -155,11 +161,13 @@ pub(super) struct Counts {
     pub(super) samples: u64,
 }
 
-/// The samples of `share` through trainer `t`: per sample its prefetch, record read,
-/// gradient and loss; per minibatch one update and (among the first M) a snapshot.
+/// The samples of `share` through trainer `t`, minibatch by minibatch: the samples'
+/// predictions and gradients, record reads and losses, then one update and (among the
+/// first M) a snapshot.
 #[inline(always)]
-pub(super) fn stream<S: Trains>(
+pub(super) fn stream<S: Trains, V: Wide>(
     t: &mut S,
+    v: V,
     plan: &Plan,
     share: &[usize],
     start: usize,
@@ -168,14 +176,16 @@ pub(super) fn stream<S: Trains>(
 ) {
     let p = plan.p;
     let ahead = (PREFETCH_BYTES / plan.stride).max(1) as usize;
+    let mut z = vec![0.0; p.batch.min(share.len())];
     for (k, mb) in share.chunks(p.batch).enumerate() {
-        for (i, &r) in mb.iter().enumerate() {
-            if let Some(&next) = share.get(k * p.batch + i + ahead) {
-                t.prefetch(next);
-            }
-            c.reads.read((r - start) as u64);
-            let z = t.sample(r);
-            *loss_sum += p.loss.value(z, f64::from(plan.data.labels[r]));
+        let from = (k * p.batch + ahead).min(share.len());
+        let to = (from + mb.len()).min(share.len());
+        t.batch(v, mb, &share[from..to], &mut z[..mb.len()]);
+        for run in mb.chunk_by(|a, b| b.checked_sub(*a) == Some(1)) {
+            c.reads.read((run[0] - start) as u64, run.len() as u64);
+        }
+        for (&r, &zi) in mb.iter().zip(&z) {
+            *loss_sum += p.loss.value(zi, f64::from(plan.data.labels[r]));
             c.model_r += c.model_t;
         }
         t.update(hyper.step.at(*updates), hyper.l2, mb.len());

@@ -11,6 +11,7 @@
 use super::loss::Loss;
 use super::params::{Model, SgdData};
 use super::tree;
+use super::wide::Wide;
 
 /// `f32` or `f64`.
 pub trait Real: Copy + Send + Sync + PartialOrd + 'static {
@@ -36,10 +37,12 @@ pub trait Real: Copy + Send + Sync + PartialOrd + 'static {
     fn model(w: Vec<Self>) -> Model;
     /// Unwraps a model of this type.
     fn weights(m: &Model) -> Vec<Self>;
+    /// The values as `f32`s, if this is `f32`.
+    fn as_f32s(v: &[Self]) -> Option<&[f32]>;
 }
 
 macro_rules! impl_real {
-    ($t:ty, $variant:ident) => {
+    ($t:ty, $variant:ident, $as_f32s:expr) => {
         impl Real for $t {
             const ZERO: Self = 0.0;
             #[inline(always)]
@@ -87,11 +90,15 @@ macro_rules! impl_real {
                     _ => unreachable!("a model of another element type"),
                 }
             }
+            #[inline(always)]
+            fn as_f32s(v: &[Self]) -> Option<&[f32]> {
+                $as_f32s(v)
+            }
         }
     };
 }
-impl_real!(f32, F32);
-impl_real!(f64, F64);
+impl_real!(f32, F32, Some);
+impl_real!(f64, F64, |_| None);
 
 /// The float trainer of one engine: the model `w` (d weights, then the bias), the
 /// gradient accumulators `g`, and the arithmetic's options.
@@ -102,6 +109,8 @@ pub struct FloatTrainer<'a, T: Real, const FTZ: bool> {
     bias: bool,
     w: Vec<T>,
     g: Vec<T>,
+    /// The current minibatch's predictions.
+    zs: Vec<T>,
 }
 
 impl<'a, T: Real, const FTZ: bool> FloatTrainer<'a, T, FTZ> {
@@ -115,6 +124,7 @@ impl<'a, T: Real, const FTZ: bool> FloatTrainer<'a, T, FTZ> {
             bias,
             w: vec![T::ZERO; m],
             g: vec![T::ZERO; m],
+            zs: Vec::new(),
         }
     }
 
@@ -127,35 +137,45 @@ impl<'a, T: Real, const FTZ: bool> FloatTrainer<'a, T, FTZ> {
         }
     }
 
-    /// Starts fetching sample `r`'s features into the cache.
-    #[inline]
-    pub fn prefetch(&self, r: usize) {
-        let all = self.data.features.as_slice().expect("row-major features");
-        let d = self.data.dims();
-        (r * d..(r + 1) * d)
-            .step_by(16)
-            .for_each(|i| crate::kernels::hints::prefetch(all, i));
-    }
-
-    /// Adds sample `r`'s gradient; returns its prediction z in `f64`.
+    /// Adds the gradients of the samples `mb`, in order, and writes each one's prediction
+    /// z to `z`; while sample i is read, the row of `ahead[i]` is prefetched. The
+    /// predictions come first, all of them: the model is fixed within a minibatch, so
+    /// their dependency chains (products, lane sums, tree) are independent and overlap in
+    /// the core; the gradient sums then run in sample order as the module doc states.
     #[inline(always)]
-    pub fn sample(&mut self, r: usize) -> f64 {
+    pub(super) fn batch<V: Wide>(&mut self, v: V, mb: &[usize], ahead: &[usize], z: &mut [f64]) {
         let d = self.data.dims();
-        let x = self.data.features.row(r);
-        let x = x.as_slice().expect("row-major features");
-        let y = Self::fl(T::from_f32(self.data.labels[r]));
-        let mut z = tree::dot::<T, FTZ>(x, &self.w[..d], self.lanes);
-        if self.bias {
-            z = Self::fl(z.add(self.w[d]));
+        let all = self.data.features.as_slice().expect("row-major features");
+        let mut zs = std::mem::take(&mut self.zs);
+        zs.resize(mb.len(), T::ZERO);
+        for (i, (&r, zi)) in mb.iter().zip(zs.iter_mut()).enumerate() {
+            if let Some(&next) = ahead.get(i) {
+                crate::kernels::hints::prefetch_all(&all[next * d..(next + 1) * d]);
+            }
+            let x = &all[r * d..(r + 1) * d];
+            let w = &self.w[..d];
+            let mut dot = match T::as_f32s(w) {
+                Some(w) if !FTZ && self.lanes == 16 => T::from_f32(v.dot16(x, w)),
+                _ => tree::dot::<T, FTZ>(x, w, self.lanes),
+            };
+            if self.bias {
+                dot = Self::fl(dot.add(self.w[d]));
+            }
+            *zi = dot;
         }
-        let gz = Self::fl(self.loss.dz(z, y));
-        for (gj, &xj) in self.g[..d].iter_mut().zip(x) {
-            *gj = Self::fl(gj.add(Self::fl(gz.mul(Self::fl(T::from_f32(xj))))));
+        for ((&r, &zi), out) in mb.iter().zip(&zs).zip(z.iter_mut()) {
+            let x = &all[r * d..(r + 1) * d];
+            let y = Self::fl(T::from_f32(self.data.labels[r]));
+            let gz = Self::fl(self.loss.dz(zi, y));
+            for (gj, &xj) in self.g[..d].iter_mut().zip(x) {
+                *gj = Self::fl(gj.add(Self::fl(gz.mul(Self::fl(T::from_f32(xj))))));
+            }
+            if self.bias {
+                self.g[d] = Self::fl(self.g[d].add(gz));
+            }
+            *out = zi.to_f64();
         }
-        if self.bias {
-            self.g[d] = Self::fl(self.g[d].add(gz));
-        }
-        z.to_f64()
+        self.zs = zs;
     }
 
     /// Applies and clears the gradient of a minibatch of `batch` samples.
