@@ -167,11 +167,13 @@ mod tests {
     use super::*;
     use proptest::prelude::*;
 
+    /// A form as a plain function of (x, w).
+    type Form = Box<dyn Fn(&[f32], &[f32]) -> f32>;
+
     /// Every form this CPU has.
-    fn forms() -> Vec<Box<dyn Fn(&[f32], &[f32]) -> f32>> {
+    fn forms() -> Vec<Form> {
         let isa = Isa::detect();
-        let mut v: Vec<Box<dyn Fn(&[f32], &[f32]) -> f32>> =
-            vec![Box::new(|x, w| Portable.dot16(x, w))];
+        let mut v: Vec<Form> = vec![Box::new(|x, w| Portable.dot16(x, w))];
         #[cfg(target_arch = "x86_64")]
         {
             if let Some(f) = Avx512::new(isa) {
