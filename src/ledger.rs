@@ -147,6 +147,17 @@ impl AddAssign for Traffic {
     }
 }
 
+impl Traffic {
+    /// The counts of `n` repeats of these accesses, each counted in full.
+    pub fn times(self, n: u64) -> Traffic {
+        Traffic {
+            bytes: self.bytes * n,
+            words: self.words * n,
+            rows: self.rows * n,
+        }
+    }
+}
+
 /// Memory words of `word_bytes` bytes touched by `len` bytes starting at byte address `addr`.
 pub fn words_touched(addr: u64, len: u64, word_bytes: u64) -> u64 {
     if len == 0 {

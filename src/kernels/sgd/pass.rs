@@ -177,6 +177,8 @@ pub(super) fn stream<S: Trains, V: Wide>(
     let p = plan.p;
     let ahead = (PREFETCH_BYTES / plan.stride).max(1) as usize;
     let mut z = vec![0.0; p.batch.min(share.len())];
+    // The running loss in a local, which the compiler may keep in a register.
+    let mut loss = *loss_sum;
     for (k, mb) in share.chunks(p.batch).enumerate() {
         let from = (k * p.batch + ahead).min(share.len());
         let to = (from + mb.len()).min(share.len());
@@ -185,11 +187,11 @@ pub(super) fn stream<S: Trains, V: Wide>(
             c.reads.read((run[0] - start) as u64, run.len() as u64);
         }
         for (&r, &zi) in mb.iter().zip(&z) {
-            *loss_sum += p.loss.value(zi, f64::from(plan.data.labels[r]));
-            c.model_r += c.model_t;
+            loss += p.loss.value(zi, f64::from(plan.data.labels[r]));
         }
         t.update(hyper.step.at(*updates), hyper.l2, mb.len());
-        c.model_r += c.model_t;
+        // Each sample reads the model, and the update reads and writes it.
+        c.model_r += c.model_t.times(mb.len() as u64 + 1);
         c.model_w += c.model_t;
         *updates += 1;
         c.samples += mb.len() as u64;
@@ -197,4 +199,5 @@ pub(super) fn stream<S: Trains, V: Wide>(
             snapshots.push(t.model());
         }
     }
+    *loss_sum = loss;
 }
