@@ -51,6 +51,7 @@ fn params(loss: Loss, batch: usize, numeric: Numeric, epochs: u32) -> SgdParams 
         block_epochs: 1,
         snapshots: 3,
         pad_records: false,
+        quant: None,
     }
 }
 

@@ -72,6 +72,7 @@ fn sweep_params() -> SgdParams {
         block_epochs: 1,
         snapshots: 8,
         pad_records: false,
+        quant: None,
     }
 }
 
@@ -177,6 +178,7 @@ fn the_fixed_point_job_reads_q_records_and_averages_like_the_library() {
         block_epochs: 1,
         snapshots: 0,
         pad_records: false,
+        quant: None,
     };
     let image = read(&a.join("input/samples.rows.bin"));
     let want = record_bytes(&data, &p, 32);
