@@ -270,6 +270,13 @@ fn the_4bit_job_streams_packed_codes_and_trains_on_their_values() {
         }
         assert_eq!(rec[5..9], data.labels[r].to_le_bytes(), "row {r} label");
     }
+    let refused = train(&source, &p, &[io(0, 32), io(1, 32)]).unwrap_err();
+    assert!(
+        refused
+            .to_string()
+            .contains("is not the value of a 4-bit code"),
+        "{refused}"
+    );
     let rs = train(&data, &p, &[io(0, 32), io(1, 32)]).expect("trains");
     for (e, r) in rs.iter().enumerate() {
         let g = |name: &str| read(&a.join(format!("golden/sgd.p{e}.{name}.bin")));
