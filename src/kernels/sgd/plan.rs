@@ -15,9 +15,9 @@
 //! be in the type the engines read: `f32` for the float modes, signed integers carrying the
 //! data Q format for fixed point (the `samples` generator writes either). The label is the
 //! last column and every other column is a feature, in table order, so the runner's record
-//! image is exactly the record the trainer counts. With k-bit codes the kernel writes the
-//! record image itself from the table's `f32` features, and every engine trains on the
-//! codes' values.
+//! image is exactly the record the trainer counts. With k-bit codes the kernel encodes the
+//! record image itself (its record form) from the table's `f32` features, and every engine
+//! trains on the codes' values.
 
 use std::ops::Range;
 
