@@ -21,6 +21,11 @@ const FILE_JOB: &str = "[input]\ntable = \"t\"\n[[input.columns]]\nname = \"c\"\
 /// A small SGD job: 64 generated samples of 3 features, row-major, two engines.
 const SGD_JOB: &str = "[tables.s]\nrows = 64\ngenerator = \"samples\"\n[tables.s.samples]\nfeatures = 3\n[layout]\npartitions = 2\norder = \"row\"\n[kernel]\nname = \"sgd\"\ntable = \"s\"\nbatch = 8\nstep = 0.1\n";
 
+/// [`SGD_JOB`] with its features streamed as codes: `keys` is the `[kernel.quant]` table.
+fn quant_job(keys: &str) -> String {
+    format!("{SGD_JOB}[kernel.quant]\n{keys}\n")
+}
+
 /// What a row sets up before running weir.
 enum Setup {
     /// Files written into the directory (relative path, bytes).
@@ -343,6 +348,16 @@ fn rows() -> Vec<Row> {
         job_row("sgd: a minibatch larger than the dataset", SGD_JOB.replace("batch = 8", "batch = 65"), &[], 2, "kernel.batch: minibatch size 65 must be within 1..=64"),
         job_row("sgd: a list of steps for averaging engines", SGD_JOB.replace("step = 0.1", "step = [0.1, 0.2]\nengines = \"averaging\""), &[], 2, "averaging engines share one step"),
         job_row("sgd: an f32 table in fixed point", SGD_JOB.replace("batch = 8", "batch = 8\nnumeric = \"fixed\""), &[], 2, "the fixed mode reads i16 with q = \"Q3.12\""),
+        job_row("sgd codes: k not in 1, 2, 4, 8", quant_job("bits = 3\nlo = -3.0\nhi = 3.0"), &[], 2, "kernel.quant: bits = 3 (expected 1, 2, 4 or 8)"),
+        job_row("sgd codes: hi equal to lo", quant_job("bits = 4\nlo = 1.0\nhi = 1.0"), &[], 2, "kernel.quant: feature 0: range [1, 1] needs finite lo < hi"),
+        job_row("sgd codes: hi below lo for one feature", quant_job("bits = 4\nlo = -1.0\nhi = [1.0, -2.0, 1.0]"), &[], 2, "kernel.quant: feature 1: range [-1, -2] needs finite lo < hi"),
+        job_row("sgd codes: a range list of the wrong length", quant_job("bits = 4\nlo = [-1.0, -1.0]\nhi = 1.0"), &[], 2, "kernel.quant.lo: lists 2 values for 3 features"),
+        job_row("sgd codes: a range too narrow for its magnitude", quant_job("bits = 4\nlo = 1e6\nhi = 1000000.25"), &[], 2, "feature 0: range [1000000, 1000000.25] is too narrow for its magnitude"),
+        job_row("sgd codes: a range wider than f32", quant_job("bits = 1\nlo = -1e39\nhi = 1e39"), &[], 2, "kernel.quant: feature 0: range [-inf, inf] needs finite lo < hi"),
+        job_row("sgd codes: an unknown outside rule", quant_job("bits = 4\nlo = -3.0\nhi = 3.0\noutside = \"wrap\""), &[], 2, "kernel.quant.outside: `wrap` (expected clamp or refuse)"),
+        job_row("sgd codes: values outside a refused range", quant_job("bits = 2\nlo = -0.5\nhi = 0.5\noutside = \"refuse\""), &[], 2, "is outside the code range [-0.5, 0.5]"),
+        job_row("sgd codes: an unknown quant key", quant_job("bits = 4\nlo = -3.0\nhi = 3.0\nstep = 0.5"), &[], 2, "unknown field `step`"),
+        job_row("sgd codes: codes with fixed-point data", quant_job("bits = 4\nlo = -3.0\nhi = 3.0").replace("features = 3", "features = 3\nq = \"Q3.12\"").replace("batch = 8", "batch = 8\nnumeric = \"fixed\""), &[], 2, "kernel.quant: k-bit codes dequantise to f32; numeric = \"fixed\" reads Q-format data"),
         job_row("sgd: samples in a Q format wider than 24 bits", SGD_JOB.replace("features = 3", "features = 3\nq = \"Q7.24\""), &[], 2, "samples.q = Q7.24: at most 24 bits"),
         cmd_row("check: a newer manifest format", Setup::Run(|r| {
             let p = r.join("manifest.json");

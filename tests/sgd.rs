@@ -1,7 +1,8 @@
 //! The SGD kernel: gradients against finite differences, f32 against f64, fixed-point
 //! operations against exact rational arithmetic, fast against the oracle, thread-count
 //! invariance, the ledger against its closed form, bad input, the generator's pinned
-//! bytes, and outside references (scikit-learn's diabetes data, numpy, nalgebra).
+//! bytes, and outside references (scikit-learn's diabetes data, numpy, nalgebra; numpy
+//! `float32` for the k-bit code scaling and packing).
 
 use ndarray::{Array1, Array2};
 use proptest::prelude::*;
@@ -51,6 +52,7 @@ fn params(loss: Loss, batch: usize, numeric: Numeric, epochs: u32) -> SgdParams 
         block_epochs: 1,
         snapshots: 3,
         pad_records: false,
+        quant: None,
     }
 }
 
@@ -628,4 +630,75 @@ fn logistic_loss_reaches_the_scikit_learn_optimum() {
         "logistic: {} ({w:?} vs {lr:?})",
         max_diff(&w, &lr)
     );
+}
+
+/// The k-bit scaling and packing in numpy `float32` arithmetic: stdin holds lo, hi (d
+/// `<f4` each) and the n × d features; argv gives d and k. Prints step, the dequantised
+/// features and each record's packed codes, as raw bytes.
+const QUANT_NUMPY: &str = r#"
+import sys, numpy as np
+d, k = int(sys.argv[1]), int(sys.argv[2])
+raw = np.frombuffer(sys.stdin.buffer.read(), dtype='<f4')
+lo, hi, x = raw[:d], raw[d:2 * d], raw[2 * d:].reshape(-1, d)
+L = np.float32(2 ** k - 1)
+step = (hi - lo) / L
+q = np.clip(np.rint((x - lo) / step), 0, 2 ** k - 1).astype(np.uint8)
+value = lo + q.astype(np.float32) * step
+bits = np.unpackbits(q[:, :, None], axis=2, bitorder='little')[:, :, :k].reshape(len(x), -1)
+codes = np.packbits(bits, axis=1, bitorder='little')
+sys.stdout.buffer.write(step.astype('<f4').tobytes() + value.astype('<f4').tobytes() + codes.tobytes())
+"#;
+
+/// Little-endian bytes of `f32` values.
+fn le<'a>(v: impl IntoIterator<Item = &'a f32>) -> Vec<u8> {
+    v.into_iter().flat_map(|x| x.to_le_bytes()).collect()
+}
+
+#[test]
+fn k_bit_codes_match_numpy_float32() {
+    use std::io::Write;
+    let ok = std::process::Command::new("python3")
+        .args(["-c", "import numpy"])
+        .output()
+        .is_ok_and(|o| o.status.success());
+    if !available("python3 with numpy", ok) {
+        return;
+    }
+    let (n, d) = (300, 7);
+    let data = gen(n as u64, d, Labels::Regression, 31);
+    let lo: Vec<f32> = (0..d).map(|j| -2.5 + 0.3 * j as f32).collect();
+    let hi: Vec<f32> = (0..d).map(|j| 1.75 + 0.45 * j as f32).collect();
+    for k in [1u32, 2, 4, 8] {
+        let quant = Quant::new(k, &lo, &hi, Outside::Clamp).expect("ranges");
+        let coded = quant.quantise(&data).expect("finite").data;
+        let mut p = params(Loss::Squared, 1, f32_mode(), 1);
+        p.quant = Some(quant.clone());
+        let image = record_bytes(&coded, &p, 64);
+        let mut child = std::process::Command::new("python3")
+            .args(["-c", QUANT_NUMPY, &d.to_string(), &k.to_string()])
+            .stdin(std::process::Stdio::piped())
+            .stdout(std::process::Stdio::piped())
+            .spawn()
+            .expect("python3");
+        let input = le(lo.iter().chain(&hi).chain(data.features.iter()));
+        child.stdin.take().unwrap().write_all(&input).unwrap();
+        let out = child.wait_with_output().unwrap();
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        let code_bytes = quant.code_bytes() as usize;
+        let (step, rest) = out.stdout.split_at(4 * d);
+        let (values, codes) = rest.split_at(4 * d * n);
+        // Reference: numpy float32 ufuncs (one IEEE rounding each, no fused multiply-add)
+        // and np.rint (round half to even); np.packbits(bitorder='little') for the layout.
+        assert_eq!(step, le(quant.step()), "k = {k}: step");
+        assert_eq!(values, le(coded.features.iter()), "k = {k}: values");
+        let ours: Vec<u8> = image
+            .chunks_exact(code_bytes + 4)
+            .flat_map(|r| r[..code_bytes].to_vec())
+            .collect();
+        assert_eq!(codes, ours, "k = {k}: packed codes");
+    }
 }

@@ -25,6 +25,21 @@ fn run(job: &Path, out: &Path, threads: &str) {
     assert_eq!(o.code, 0, "{}", o.stderr);
 }
 
+/// Runs `job` into `a` on one thread and into `b` on two, and checks that every file but
+/// `timing.json` is byte-identical.
+fn same_on_one_and_two_threads(job: &Path, a: &Path, b: &Path) {
+    run(job, a, "1");
+    run(job, b, "2");
+    let (ta, tb) = (tree(a), tree(b));
+    assert_eq!(ta.len(), tb.len());
+    for ((pa, da), (pb, db)) in ta.iter().zip(&tb) {
+        assert_eq!(pa, pb);
+        if pa != "timing.json" {
+            assert!(da == db, "{pa} differs between 1 and 2 threads");
+        }
+    }
+}
+
 fn read(p: &Path) -> Vec<u8> {
     std::fs::read(p).unwrap_or_else(|e| panic!("{}: {e}", p.display()))
 }
@@ -72,6 +87,7 @@ fn sweep_params() -> SgdParams {
         block_epochs: 1,
         snapshots: 8,
         pad_records: false,
+        quant: None,
     }
 }
 
@@ -124,16 +140,7 @@ fn the_fixed_point_job_reads_q_records_and_averages_like_the_library() {
     let t = TempDir::new("sgd-job-fixed");
     let (a, b) = (t.join("one"), t.join("two"));
     let job = repo("data/jobs/sgd-fixed.toml");
-    run(&job, &a, "1");
-    run(&job, &b, "2");
-    let (ta, tb) = (tree(&a), tree(&b));
-    assert_eq!(ta.len(), tb.len());
-    for ((pa, da), (pb, db)) in ta.iter().zip(&tb) {
-        assert_eq!(pa, pb);
-        if pa != "timing.json" {
-            assert!(da == db, "{pa} differs between 1 and 2 threads");
-        }
-    }
+    same_on_one_and_two_threads(&job, &a, &b);
     let data = SamplesGen {
         rows: 4096,
         dims: 7,
@@ -177,6 +184,7 @@ fn the_fixed_point_job_reads_q_records_and_averages_like_the_library() {
         block_epochs: 1,
         snapshots: 0,
         pad_records: false,
+        quant: None,
     };
     let image = read(&a.join("input/samples.rows.bin"));
     let want = record_bytes(&data, &p, 32);
@@ -193,6 +201,122 @@ fn the_fixed_point_job_reads_q_records_and_averages_like_the_library() {
     }
     // Averaged engines hold the same model after every epoch.
     assert_eq!(rs[0].epoch_models, rs[1].epoch_models);
+}
+
+#[test]
+fn the_4bit_job_streams_packed_codes_and_trains_on_their_values() {
+    let t = TempDir::new("sgd-job-4bit");
+    let (a, b) = (t.join("one"), t.join("two"));
+    let job = repo("data/jobs/sgd-4bit.toml");
+    same_on_one_and_two_threads(&job, &a, &b);
+    let source = SamplesGen {
+        rows: 4096,
+        dims: 10,
+        seed: 21,
+        scale: vec![1.0, 0.5],
+        noise: 0.05,
+        bias: -0.25,
+        labels: Labels::Regression,
+    }
+    .generate()
+    .data;
+    let (lo, hi): (Vec<f32>, Vec<f32>) = (0..10)
+        .map(|j| if j % 2 == 0 { (-3.0, 3.0) } else { (-1.5, 1.5) })
+        .unzip();
+    let quant = Quant::new(4, &lo, &hi, Outside::Clamp).expect("the job's ranges");
+    let coded = quant.quantise(&source).expect("finite data");
+    assert!(coded.clamped > 0, "three-sigma ranges clamp a few values");
+    let data = coded.data;
+    let p = SgdParams {
+        loss: Loss::Squared,
+        batch: 32,
+        hyper: Hyper {
+            step: Step {
+                eta: 0.05,
+                decay: 0.0,
+            },
+            l2: 0.0,
+        },
+        bias: true,
+        epochs: 4,
+        order: Order::Shuffle { seed: 5 },
+        tol: None,
+        numeric: Numeric::F32 {
+            lanes: 8,
+            ftz: false,
+        },
+        engines: EngineMode::Averaging { engines: 2 },
+        capacity: None,
+        block_epochs: 1,
+        snapshots: 2,
+        pad_records: false,
+        quant: Some(quant.clone()),
+    };
+    // Ten 4-bit codes in 5 bytes, then the f32 label: 9-byte records, packed.
+    let image = read(&a.join("input/samples.rows.bin"));
+    let want = record_bytes(&data, &p, 32);
+    assert_eq!(want.len(), 4096 * 9);
+    assert_eq!(&image[..want.len()], &want[..], "4-bit record image");
+    assert_eq!(
+        record_bytes(&source, &p, 32),
+        want,
+        "source and values code alike"
+    );
+    // Unpacking the image by the stated layout gives the values training reads.
+    for (r, rec) in image[..want.len()].chunks_exact(9).enumerate() {
+        for j in 0..10 {
+            let code = (rec[j / 2] >> (4 * (j % 2))) & 0xF;
+            assert_eq!(quant.value(j, code), data.features[[r, j]], "row {r} x{j}");
+        }
+        assert_eq!(rec[5..9], data.labels[r].to_le_bytes(), "row {r} label");
+    }
+    let refused = train(&source, &p, &[io(0, 32), io(1, 32)]).unwrap_err();
+    assert!(
+        refused
+            .to_string()
+            .contains("is not the value of a 4-bit code"),
+        "{refused}"
+    );
+    let rs = train(&data, &p, &[io(0, 32), io(1, 32)]).expect("trains");
+    for (e, r) in rs.iter().enumerate() {
+        let g = |name: &str| read(&a.join(format!("golden/sgd.p{e}.{name}.bin")));
+        let m = r.model.to_bytes();
+        assert_eq!(&g("model")[..m.len()], &m[..], "engine {e} model");
+        let ep = models(&r.epoch_models);
+        assert_eq!(&g("epochs")[..ep.len()], &ep[..], "engine {e} epochs");
+        let table: Vec<u8> = (0..10)
+            .flat_map(|j| [quant.lo()[j].to_le_bytes(), quant.step()[j].to_le_bytes()].concat())
+            .collect();
+        assert_eq!(&g("dequant")[..table.len()], &table[..], "engine {e} table");
+    }
+    // The ledger counts 9-byte records: each averaging engine streams its half of the
+    // samples per epoch, and loads the whole image once.
+    let ledger: serde_json::Value =
+        serde_json::from_slice(&read(&a.join("ledger.json"))).expect("ledger json");
+    let bytes = |phase: &str, direction: &str| -> Vec<u64> {
+        ledger["entries"]
+            .as_array()
+            .expect("entries")
+            .iter()
+            .filter(|x| {
+                x["phase"] == phase && x["region"] == "device" && x["direction"] == direction
+            })
+            .map(|x| x["bytes"].as_u64().expect("bytes"))
+            .collect()
+    };
+    for e in 0..4 {
+        assert_eq!(
+            bytes(&format!("epoch[{e}]"), "read"),
+            [2048 * 9; 2],
+            "epoch {e}"
+        );
+    }
+    assert_eq!(bytes("load[0]", "write"), [4096 * 9; 2]);
+    let vh = String::from_utf8(read(&a.join("memory_map.vh"))).unwrap();
+    assert!(vh.contains("SGD_RECORD_BYTES = 32'd9;"), "{vh}");
+    assert!(vh.contains("SGD_QUANT_BITS = 32'd4;"), "{vh}");
+    // step of ±1.5 in 15 steps is the f32 nearest 0.2 (0x3E4CCCCD = 1045220557).
+    assert!(vh.contains("SGD_QUANT_STEP_1 = 32'd1045220557;"), "{vh}");
 }
 
 #[test]

@@ -115,6 +115,7 @@ pub fn bench_params(batch: usize, numeric: Numeric, threads: usize) -> SgdParams
         block_epochs: 1,
         snapshots: 0,
         pad_records: false,
+        quant: None,
     }
 }
 

@@ -110,21 +110,30 @@ pub fn check(spec: &JobSpec) -> Result<()> {
             within(&format!("table `{name}`: turbines"), n.into(), 1, 1 << 20)?;
         }
     }
-    let kernel = serde_json::to_value(&spec.kernel).unwrap_or_default();
-    for (k, v) in kernel.as_object().into_iter().flatten() {
+    kernel_keys(
+        "kernel",
+        &serde_json::to_value(&spec.kernel).unwrap_or_default(),
+    )
+}
+
+/// Checks the strings and lists of the kernel table `v` (named `at`) and of its
+/// sub-tables.
+fn kernel_keys(at: &str, v: &serde_json::Value) -> Result<()> {
+    for (k, v) in v.as_object().into_iter().flatten() {
         match v {
             serde_json::Value::String(s) => within(
-                &format!("kernel.{k} (characters)"),
+                &format!("{at}.{k} (characters)"),
                 s.len() as u64,
                 0,
                 MAX_EXPRESSION as u64,
             )?,
             serde_json::Value::Array(a) => within(
-                &format!("kernel.{k} (entries)"),
+                &format!("{at}.{k} (entries)"),
                 a.len() as u64,
                 0,
                 MAX_LIST as u64,
             )?,
+            serde_json::Value::Object(_) => kernel_keys(&format!("{at}.{k}"), v)?,
             _ => {}
         }
     }

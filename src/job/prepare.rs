@@ -419,8 +419,18 @@ fn place(
         ));
     }
     let mut ranges = Vec::new();
+    // Bytes of one row-major record: the kernel's own form, else the columns' byte forms.
+    let record_bytes = |t: &InputTable| -> Option<u64> {
+        kernel
+            .record_form(&t.name)
+            .filter(|_| row_major)
+            .map(|f| f.record_bytes(word_bytes))
+    };
     for t in tables {
-        let bits: Vec<u32> = t.schema.iter().map(|(_, ty)| ty.bits()).collect();
+        let bits: Vec<u32> = match record_bytes(t) {
+            Some(b) => vec![u32::try_from(b * 8).unwrap_or(u32::MAX)],
+            None => t.schema.iter().map(|(_, ty)| ty.bits()).collect(),
+        };
         let g = layout::granule(l.word_bits, &bits, row_major);
         let rows = t.source.rows();
         ranges.push(match (t.share, &l.partition_rows) {
@@ -439,11 +449,12 @@ fn place(
         MemoryMap::new(word_bytes, l.channels, channel_bytes).map_err(|e| e.context("layout"))?;
     let image_bytes = |t: &InputTable, col: &str, n: u64| -> u64 {
         if row_major {
-            let rec: u64 = t
-                .schema
-                .iter()
-                .map(|(_, ty)| u64::from(ty.bits() / 8))
-                .sum();
+            let rec: u64 = record_bytes(t).unwrap_or_else(|| {
+                t.schema
+                    .iter()
+                    .map(|(_, ty)| u64::from(ty.bits() / 8))
+                    .sum()
+            });
             n * rec
         } else {
             let ty = t.schema.iter().find(|(c, _)| c == col).expect("a column").1;

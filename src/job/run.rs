@@ -202,9 +202,16 @@ fn run_engine(prep: &Prepared, e: usize, rows: &[Option<Table>]) -> Result<Engin
         .map_err(|m| Error::input(format!("engine {e}: {m}")))
 }
 
-/// The device bytes of each image of `part` (one per column, or one of row-major records).
-fn image_bytes(prep: &Prepared, part: &Table) -> Vec<Vec<u8>> {
-    if prep.row_major {
+/// The device bytes of each image of `part` of `t` (one per column, or one of row-major
+/// records, in the kernel's record form when it has one).
+fn image_bytes(prep: &Prepared, t: &InputTable, part: &Table) -> Result<Vec<Vec<u8>>> {
+    if let Some(form) = prep.kernel.record_form(&t.name).filter(|_| prep.row_major) {
+        let bytes = form
+            .encode(part, prep.map.word_bytes())
+            .map_err(|m| Error::input(format!("table `{}`: {m}", t.name)))?;
+        return Ok(vec![bytes]);
+    }
+    Ok(if prep.row_major {
         let mut bytes = Vec::new();
         for r in 0..part.rows() {
             for c in &part.columns {
@@ -221,7 +228,7 @@ fn image_bytes(prep: &Prepared, part: &Table) -> Vec<Vec<u8>> {
                 bytes
             })
             .collect()
-    }
+    })
 }
 
 /// The element label of column `c` of `t` (`i16:Q3.12` when a format was given).
@@ -287,7 +294,7 @@ fn write_table_images(
     proto: &FileEntry,
 ) -> Result<()> {
     let cols = prep.image_columns(t);
-    for (ci, (col, bytes)) in cols.iter().zip(image_bytes(prep, part)).enumerate() {
+    for (ci, (col, bytes)) in cols.iter().zip(image_bytes(prep, t, part)?).enumerate() {
         let reg = prep.region(&prep.input_id(t, e, col));
         let entry = FileEntry {
             base: Some(reg.base),
@@ -345,7 +352,7 @@ fn write_replicas(w: &mut RunFiles, prep: &Prepared) -> Result<()> {
             ..FileEntry::default()
         };
         let cols = prep.image_columns(t);
-        let images = image_bytes(prep, whole);
+        let images = image_bytes(prep, t, whole)?;
         // The engine reading each channel's copy; the first copy is written together with
         // the images, the others after them.
         let readers: Vec<usize> = if prep.spec.output.channel_images {

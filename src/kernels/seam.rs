@@ -10,6 +10,8 @@
 //!   Kernel::run(e)      one engine on its share of the inputs ─► EngineRun
 //!                         ├─ golden outputs as typed records (bytes + record layout)
 //!                         └─ the ledger it counted while touching memory
+//!   Kernel::record_form(t)  the kernel's own record bytes for t's row-major image
+//!                       (packed codes), in place of the columns' byte forms
 //!   Kernel::map_section() / summary()   extra memory-map parameters, terminal lines
 //! ```
 //!
@@ -203,6 +205,16 @@ pub struct MapSection {
     pub json: Vec<(String, serde_json::Value)>,
 }
 
+/// A kernel's own form of the records of a row-major image, in place of the columns'
+/// byte forms back to back (SGD's k-bit feature codes).
+pub trait RecordForm {
+    /// Bytes of one record in memory words of `word_bytes` bytes.
+    fn record_bytes(&self, word_bytes: u64) -> u64;
+
+    /// The image of `rows`: one record per row, in row order.
+    fn encode(&self, rows: &Table, word_bytes: u64) -> Result<Vec<u8>, KernelError>;
+}
+
 /// An error a kernel reports while running: the runner adds which engine.
 #[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
 #[error("{0}")]
@@ -233,6 +245,12 @@ pub trait Kernel: Send + Sync + std::fmt::Debug {
 
     /// Runs one engine.
     fn run(&self, ctx: &EngineCtx<'_>) -> Result<EngineRun, KernelError>;
+
+    /// The record form of table `table`'s row-major image, when the kernel lays its
+    /// records out itself.
+    fn record_form(&self, _table: &str) -> Option<&dyn RecordForm> {
+        None
+    }
 
     /// Extra memory-map parameters.
     fn map_section(&self) -> Option<MapSection> {

@@ -1,38 +1,40 @@
 //! The SGD kernel's `[kernel]` keys and binding them against the dataset table: the
 //! label must be the last column, every other column a feature, all in the type the
 //! numeric mode reads; everything but the data's values is validated here, before any
-//! image is written.
+//! image is written. The `[kernel.quant]` keys choose k-bit feature codes and their ranges.
 
 use serde::{Deserialize, Serialize};
 
 use super::fixed::{self, FixedSpec, Overflow, Rounding};
+use super::quant::{Outside, Quant};
 use super::{validate, EngineMode, Hyper, Loss, Numeric, Order, SgdData, SgdParams, Step};
 use crate::error::{Error, Result};
 use crate::kernels::seam::TableSchema;
 use crate::table::{ElemType, QFormat};
 
-/// A number, or one number per engine (an independent sweep).
+/// A number, or one number per engine (an independent sweep) or per feature (a code
+/// range).
 #[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
 #[serde(untagged)]
-pub enum PerEngine {
-    /// The same value for every engine.
+pub enum OneOrEach {
+    /// The same value for every engine or feature.
     One(f64),
-    /// Engine e takes entry e.
+    /// Engine or feature i takes entry i.
     Each(Vec<f64>),
 }
 
-impl PerEngine {
+impl OneOrEach {
     pub(super) fn at(&self, e: usize) -> Option<f64> {
         match self {
-            PerEngine::One(v) => Some(*v),
-            PerEngine::Each(v) => v.get(e).copied(),
+            OneOrEach::One(v) => Some(*v),
+            OneOrEach::Each(v) => v.get(e).copied(),
         }
     }
 
     pub(super) fn len(&self) -> Option<usize> {
         match self {
-            PerEngine::One(_) => None,
-            PerEngine::Each(v) => Some(v.len()),
+            OneOrEach::One(_) => None,
+            OneOrEach::Each(v) => Some(v.len()),
         }
     }
 }
@@ -54,13 +56,13 @@ pub struct SgdConfig {
     pub batch: u64,
     /// Step size η (a list: one per engine, independent engines only).
     #[serde(default = "eta")]
-    pub step: PerEngine,
+    pub step: OneOrEach,
     /// Step decay: η_t = η / (1 + t·decay).
     #[serde(default = "zero")]
-    pub decay: PerEngine,
+    pub decay: OneOrEach,
     /// L2 strength λ.
     #[serde(default = "zero")]
-    pub l2: PerEngine,
+    pub l2: OneOrEach,
     /// The model has an (unregularised) bias.
     #[serde(default = "yes")]
     pub bias: bool,
@@ -116,6 +118,60 @@ pub struct SgdConfig {
     /// Keep the model after each of the first M minibatches.
     #[serde(default)]
     pub snapshots: u64,
+    /// Stream the features as k-bit codes (absent: in the numeric mode's type).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub quant: Option<QuantKeys>,
+}
+
+/// The `[kernel.quant]` keys: features stream as k-bit codes of a stated range and
+/// training reads their dequantised values.
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct QuantKeys {
+    /// k: 1, 2, 4 or 8 bits per code.
+    pub bits: u32,
+    /// Low end of the range, rounded to `f32`: one for every feature, or one per feature.
+    pub lo: OneOrEach,
+    /// High end of the range, as `lo`.
+    pub hi: OneOrEach,
+    /// A value outside its range: `clamp` (to the end code, counted) or `refuse` (an error).
+    #[serde(default = "clamp")]
+    pub outside: String,
+}
+
+impl QuantKeys {
+    /// The scaling of `d` features.
+    fn bind(&self, d: usize) -> Result<Quant> {
+        let ends = |key: &str, v: &OneOrEach| -> Result<Vec<f32>> {
+            if let Some(n) = v.len().filter(|&n| n != d) {
+                return Err(bad(
+                    &format!("quant.{key}"),
+                    format!("lists {n} values for {d} features"),
+                ));
+            }
+            // Rounded to f32 by nearest-even: the range the device stores.
+            Ok((0..d)
+                .map(|j| v.at(j).expect("length checked") as f32)
+                .collect())
+        };
+        let outside = match self.outside.as_str() {
+            "clamp" => Outside::Clamp,
+            "refuse" => Outside::Refuse,
+            o => {
+                return Err(bad(
+                    "quant.outside",
+                    format!("`{o}` (expected clamp or refuse)"),
+                ))
+            }
+        };
+        Quant::new(
+            self.bits,
+            &ends("lo", &self.lo)?,
+            &ends("hi", &self.hi)?,
+            outside,
+        )
+        .map_err(|e| bad("quant", e))
+    }
 }
 
 fn label() -> String {
@@ -130,11 +186,11 @@ fn one() -> u64 {
 fn one_u32() -> u32 {
     1
 }
-fn eta() -> PerEngine {
-    PerEngine::One(0.01)
+fn eta() -> OneOrEach {
+    OneOrEach::One(0.01)
 }
-fn zero() -> PerEngine {
-    PerEngine::One(0.0)
+fn zero() -> OneOrEach {
+    OneOrEach::One(0.0)
 }
 fn yes() -> bool {
     true
@@ -165,6 +221,9 @@ fn eight() -> u32 {
 }
 fn independent() -> String {
     "independent".into()
+}
+fn clamp() -> String {
+    "clamp".into()
 }
 
 /// SGD bound to its dataset table.
@@ -262,6 +321,17 @@ impl SgdConfig {
             ));
         }
         let numeric = self.numeric()?;
+        let dims = table.columns.len() - 1;
+        let quant = match &self.quant {
+            Some(_) if matches!(numeric, Numeric::Fixed(_)) => {
+                return Err(bad(
+                    "quant",
+                    "k-bit codes dequantise to f32; numeric = \"fixed\" reads Q-format data instead (use f32 or f64)",
+                ))
+            }
+            Some(k) => Some(k.bind(dims)?),
+            None => None,
+        };
         for (i, (name, ty)) in table.columns.iter().enumerate() {
             let q = table.q.get(i).copied().flatten();
             let ok = match &numeric {
@@ -364,6 +434,7 @@ impl SgdConfig {
             block_epochs: self.block_epochs,
             snapshots: self.snapshots as usize,
             pad_records: false,
+            quant,
         };
         if rows == 0 || params.batch == 0 || params.batch > rows {
             return Err(bad(
@@ -374,11 +445,13 @@ impl SgdConfig {
         // Everything else but the data's values is checked now, on a one-row stand-in
         // (with a minibatch of one row) so no memory is spent on the table's size.
         let probe = SgdData {
-            features: ndarray::Array2::zeros((1, table.columns.len() - 1)),
+            features: ndarray::Array2::zeros((1, dims)),
             labels: ndarray::Array1::from_elem(1, 1.0),
         };
         let mut check = params.clone();
         check.batch = 1;
+        // The stand-in's zeros need not be code values; the codes were checked above.
+        check.quant = None;
         if let Some(h) = self.hyper(0) {
             check.engines = match check.engines {
                 EngineMode::Independent { .. } => EngineMode::Independent { sweep: vec![h] },

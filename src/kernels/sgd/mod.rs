@@ -1,7 +1,8 @@
 //! Minibatch linear SGD: squared, logistic and hinge loss over a dense n × d dataset, in
 //! an `f64` reference mode, an `f32` mode with a stated accumulation order, and bit-true
-//! fixed point; E engines (independent sweeps or data-parallel averaging) and block-wise
-//! training when the dataset exceeds a device capacity.
+//! fixed point; the float modes may stream the features as k-bit codes (`quant`); E
+//! engines (independent sweeps or data-parallel averaging) and block-wise training when
+//! the dataset exceeds a device capacity.
 //!
 //! ```text
 //!   SgdData (n×d f32 + labels) ─► engine e ─► epoch ─► minibatch ─► sample
@@ -25,6 +26,7 @@ pub mod naive;
 mod params;
 mod pass;
 mod plan;
+pub mod quant;
 pub mod real;
 mod record;
 pub mod tree;
@@ -32,12 +34,13 @@ mod wide;
 
 pub use engine::{train, train_engine, train_on, train_validated};
 pub use fixed::{FixedSpec, Overflow, Rounding};
-pub use keys::{PerEngine, SgdConfig, SgdKernel};
+pub use keys::{OneOrEach, QuantKeys, SgdConfig, SgdKernel};
 pub use loss::Loss;
 pub use params::{
     validate, EngineMode, Hyper, Model, ModelElem, Numeric, Order, OverflowCounts, SgdData,
     SgdEngineResult, SgdError, SgdIo, SgdParams, Step,
 };
+pub use quant::{Outside, Quant, Quantised};
 pub use record::record_bytes;
 
 /// Ledger phase of epoch `e`.

@@ -6,6 +6,7 @@ use ndarray::{Array1, Array2};
 
 use super::fixed::FixedSpec;
 use super::loss::Loss;
+use super::quant::Quant;
 use crate::kernels::predicate::Value;
 use crate::ledger::Ledger;
 use crate::table::{ColumnData, QFormat, Table};
@@ -201,6 +202,9 @@ pub struct SgdParams {
     pub snapshots: usize,
     /// Pad each record to a whole number of words in the image.
     pub pad_records: bool,
+    /// Features stream as k-bit codes with this scaling; the data must then hold their
+    /// dequantised values ([`Quant::quantise`]).
+    pub quant: Option<Quant>,
 }
 
 /// Where one engine's data and model live.
@@ -492,6 +496,14 @@ pub fn validate(
             }
         }
         Numeric::Fixed(f) => f.validate(params, &hypers)?,
+    }
+    if let Some(q) = &params.quant {
+        if matches!(params.numeric, Numeric::Fixed(_)) {
+            return Err(SgdError::Param(
+                "k-bit codes dequantise to f32: fixed point reads Q-format data instead".into(),
+            ));
+        }
+        q.check(data)?;
     }
     Ok(())
 }

@@ -4,27 +4,33 @@
 //! ```text
 //!   dataset table (replicated: one row-major record image per engine channel)
 //!     record = x0 … x{d−1} then the label, f32 or the data Q format, packed
+//!              (or k-bit codes of x0 … x{d−1}, then the f32 label: the kernel's record form)
 //!        └─► engine e trains (its sweep entry, or its share with model averaging)
 //!              ├─► model   (device region: the final model, read back by the host)
-//!              └─► epochs, batches, loss (on-chip history, no device address)
+//!              ├─► epochs, batches, loss (on-chip history, no device address)
+//!              └─► dequant (with codes: per feature lo and step, the on-chip table)
 //! ```
 //!
 //! The runner writes the dataset image from the table, so the table's columns must already
 //! be in the type the engines read: `f32` for the float modes, signed integers carrying the
 //! data Q format for fixed point (the `samples` generator writes either). The label is the
 //! last column and every other column is a feature, in table order, so the runner's record
-//! image is exactly the record the trainer counts.
+//! image is exactly the record the trainer counts. With k-bit codes the kernel encodes the
+//! record image itself (its record form) from the table's `f32` features, and every engine
+//! trains on the codes' values.
 
 use std::ops::Range;
 
-use super::fixed;
 use super::keys::SgdKernel;
+use super::quant::Quant;
+use super::record::{payload_bytes, record_bytes, record_shape};
 use super::{
-    train, train_engine, EngineMode, Model, ModelElem, Numeric, SgdData, SgdEngineResult, SgdIo,
+    fixed, train, train_engine, EngineMode, Model, ModelElem, Numeric, SgdData, SgdEngineResult,
+    SgdIo,
 };
 use crate::kernels::seam::{
     Arrays, EngineCtx, EngineRun, Field, Golden, Kernel, KernelError, MapParam, MapSection,
-    RegionNeed, Share, Sizing, TableUse,
+    RecordForm, RegionNeed, Share, Sizing, TableUse,
 };
 use crate::ledger::{Cursor, Direction, Key, Phase};
 use crate::table::{ElemType, Table};
@@ -83,6 +89,46 @@ impl SgdKernel {
                 descr,
                 len: bytes.len() as u64 / u64::from(ty.bits() / 8),
             },
+            bytes,
+        }
+    }
+
+    /// The dataset of `rows` as the engines read it: the table's values, or with k-bit
+    /// codes their dequantised values and the count of clamped features.
+    fn dataset(&self, rows: &Table) -> std::result::Result<(SgdData, u64), KernelError> {
+        let features: Vec<usize> = (0..self.dims()).collect();
+        let data = SgdData::from_table(rows, &features, self.dims(), &self.table.q)
+            .map_err(|e| KernelError(e.to_string()))?;
+        match &self.params.quant {
+            Some(q) => q
+                .quantise(&data)
+                .map(|d| (d.data, d.clamped))
+                .map_err(|e| KernelError(format!("kernel.quant: {e}"))),
+            None => Ok((data, 0)),
+        }
+    }
+
+    /// The dequantisation table: per feature lo then step, `f32`.
+    fn dequant(&self, q: &Quant) -> Golden {
+        let bytes: Vec<u8> = q
+            .lo()
+            .iter()
+            .zip(q.step())
+            .flat_map(|(l, s)| [l.to_le_bytes(), s.to_le_bytes()].concat())
+            .collect();
+        Golden {
+            name: "dequant".into(),
+            region: None,
+            records: q.dims() as u64,
+            record_bytes: 8,
+            elem: "record".into(),
+            fields: ["lo", "step"]
+                .map(|name| Field {
+                    name: name.into(),
+                    ty: ElemType::F32,
+                })
+                .to_vec(),
+            arrays: Arrays::PerField,
             bytes,
         }
     }
@@ -159,9 +205,7 @@ impl Kernel for SgdKernel {
 
     fn run(&self, ctx: &EngineCtx<'_>) -> std::result::Result<EngineRun, KernelError> {
         let rows = ctx.tables[0].rows;
-        let features: Vec<usize> = (0..self.dims()).collect();
-        let data = SgdData::from_table(rows, &features, self.dims(), &self.table.q)
-            .map_err(|e| KernelError(e.to_string()))?;
+        let (data, clamped) = self.dataset(rows)?;
         let r = self.train_one(&data, ctx).map_err(KernelError)?;
         let mut ledger = r.ledger;
         let mut cw = Cursor::new(ctx.region_bases[0], ctx.word_bytes);
@@ -200,6 +244,9 @@ impl Kernel for SgdKernel {
             },
             bytes: r.losses.iter().flat_map(|l| l.to_le_bytes()).collect(),
         });
+        if let Some(q) = &self.params.quant {
+            outputs.push(self.dequant(q));
+        }
         let o = r.overflow;
         let mut note = format!(
             "engine {}: loss {:.6e} after epoch 1, {:.6e} after epoch {epochs}",
@@ -211,6 +258,12 @@ impl Kernel for SgdKernel {
             note.push_str(&format!(
                 "; overflow events: data {}, dot {}, gradient {}, model {}",
                 o.data, o.dot, o.grad, o.model
+            ));
+        }
+        if let Some(q) = &self.params.quant {
+            note.push_str(&format!(
+                "; {}-bit codes, {clamped} features clamped to their range",
+                q.bits()
             ));
         }
         Ok(EngineRun {
@@ -227,11 +280,11 @@ impl Kernel for SgdKernel {
         })
     }
 
+    fn record_form(&self, table: &str) -> Option<&dyn RecordForm> {
+        (self.params.quant.is_some() && table == self.table.name).then_some(self as _)
+    }
+
     fn map_section(&self) -> Option<MapSection> {
-        let elem = match &self.params.numeric {
-            Numeric::Fixed(f) => fixed::storage_bits(f.data) / 8,
-            _ => 4,
-        };
         let p = |name: &str, value: u64| MapParam {
             name: name.into(),
             bits: 32,
@@ -239,26 +292,47 @@ impl Kernel for SgdKernel {
             value: i128::from(value),
         };
         let d = self.dims() as u64;
+        let mut params = vec![
+            p("SGD_FEATURES", d),
+            p("SGD_RECORD_BYTES", payload_bytes(self.dims(), &self.params)),
+            p("SGD_MODEL_BYTES", self.model_bytes()),
+            p("SGD_BATCH", self.config.batch),
+            p("SGD_EPOCHS", u64::from(self.params.epochs)),
+        ];
+        let mut json = serde_json::json!({
+            "features": d,
+            "bias": self.params.bias,
+            "numeric": self.config.numeric,
+            "loss": self.config.loss,
+            "engines": self.config.engines,
+        });
+        let mut comment =
+            "SGD: features per record, record and model bytes, minibatch size, epochs".to_string();
+        if let Some(q) = &self.params.quant {
+            comment.push_str(
+                "; k-bit codes: bits per code, code bytes per record (the label's offset), then per feature j the f32 bit patterns of lo and step (x = lo + q*step)",
+            );
+            params.push(p("SGD_QUANT_BITS", u64::from(q.bits())));
+            params.push(p("SGD_QUANT_CODE_BYTES", q.code_bytes()));
+            for (j, (l, s)) in q.lo().iter().zip(q.step()).enumerate() {
+                params.push(p(&format!("SGD_QUANT_LO_{j}"), u64::from(l.to_bits())));
+                params.push(p(&format!("SGD_QUANT_STEP_{j}"), u64::from(s.to_bits())));
+            }
+            let bits = |v: &[f32]| v.iter().map(|x| x.to_bits()).collect::<Vec<u32>>();
+            json["quant"] = serde_json::json!({
+                "bits": q.bits(),
+                "code_bytes": q.code_bytes(),
+                "lo": q.lo(),
+                "hi": q.hi(),
+                "step": q.step(),
+                "lo_f32_bits": bits(q.lo()),
+                "step_f32_bits": bits(q.step()),
+            });
+        }
         Some(MapSection {
-            comment: "SGD: features per record, record and model bytes, minibatch size, epochs"
-                .into(),
-            params: vec![
-                p("SGD_FEATURES", d),
-                p("SGD_RECORD_BYTES", (d + 1) * u64::from(elem)),
-                p("SGD_MODEL_BYTES", self.model_bytes()),
-                p("SGD_BATCH", self.config.batch),
-                p("SGD_EPOCHS", u64::from(self.params.epochs)),
-            ],
-            json: vec![(
-                "sgd".into(),
-                serde_json::json!({
-                    "features": d,
-                    "bias": self.params.bias,
-                    "numeric": self.config.numeric,
-                    "loss": self.config.loss,
-                    "engines": self.config.engines,
-                }),
-            )],
+            comment,
+            params,
+            json: vec![("sgd".into(), json)],
         })
     }
 
@@ -268,13 +342,30 @@ impl Kernel for SgdKernel {
 
     fn summary(&self, runs: &[(u64, u64)]) -> Vec<String> {
         let epochs = runs.iter().map(|r| r.1).max().unwrap_or(0);
+        let codes = self
+            .params
+            .quant
+            .as_ref()
+            .map_or(String::new(), |q| format!(", {}-bit codes", q.bits()));
         vec![format!(
-            "sgd: {} engines trained up to {epochs} epochs over {} samples of {} features ({} loss, {})",
+            "sgd: {} engines trained up to {epochs} epochs over {} samples of {} features ({} loss, {}{codes})",
             runs.len(),
             self.table.rows,
             self.dims(),
             self.config.loss,
             self.config.numeric
         )]
+    }
+}
+
+/// With k-bit codes the record image is the codes of the table's features, then the label.
+impl RecordForm for SgdKernel {
+    fn record_bytes(&self, word_bytes: u64) -> u64 {
+        record_shape(self.dims(), &self.params, word_bytes).1
+    }
+
+    fn encode(&self, rows: &Table, word_bytes: u64) -> std::result::Result<Vec<u8>, KernelError> {
+        let (data, _) = self.dataset(rows)?;
+        Ok(record_bytes(&data, &self.params, word_bytes))
     }
 }
