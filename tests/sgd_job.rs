@@ -288,6 +288,9 @@ fn the_4bit_job_streams_packed_codes_and_trains_on_their_values() {
             .flat_map(|j| [quant.lo()[j].to_le_bytes(), quant.step()[j].to_le_bytes()].concat())
             .collect();
         assert_eq!(&g("dequant")[..table.len()], &table[..], "engine {e} table");
+        // Per epoch each engine streams 2048 records of 5 code bytes and a 4-byte label.
+        assert_eq!(r.feature_bytes, [2048 * 5; 4], "engine {e} feature bytes");
+        assert_eq!(r.label_bytes, [2048 * 4; 4], "engine {e} label bytes");
     }
     // The ledger counts 9-byte records: each averaging engine streams its half of the
     // samples per epoch, and loads the whole image once.

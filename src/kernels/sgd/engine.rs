@@ -16,7 +16,7 @@ use super::fixed::{self, FixedTrainer};
 use super::params::*;
 use super::pass::{order, stream, Counts, Plan, Reads};
 use super::real::{self, FloatTrainer};
-use super::record::record_shape;
+use super::record::{field_bytes, record_shape};
 use super::wide::{self, Wide};
 use crate::kernels::isa::{Isa, Level};
 use crate::ledger::{words_touched, Direction, Key, Ledger, Phase, Region, Traffic};
@@ -97,7 +97,7 @@ impl Engine<'_> {
             },
             samples: 0,
         };
-        let eb = plan.payload / (d + 1);
+        let (fb, lb) = field_bytes(d as usize, p);
         self.loss_sum = 0.0;
         self.samples = 0;
         let nb = plan.blocks();
@@ -140,8 +140,8 @@ impl Engine<'_> {
         }
         let (reads, model_r, model_w, samples) = (c.reads, c.model_r, c.model_w, c.samples);
         self.samples = samples;
-        self.feature_bytes.push(samples * d * eb);
-        self.label_bytes.push(samples * eb);
+        self.feature_bytes.push(samples * fb);
+        self.label_bytes.push(samples * lb);
         let mut reads = reads;
         self.ledger.add(
             Key::device(self.index, phase, self.io.channel, Direction::Read),

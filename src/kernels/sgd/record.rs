@@ -14,13 +14,19 @@ pub(super) fn elem_bytes(n: &Numeric) -> u64 {
     }
 }
 
-/// Bytes of one record before padding: d features and the label.
-pub(super) fn payload_bytes(d: usize, p: &SgdParams) -> u64 {
+/// Bytes of one record's (features, label) before padding.
+pub(super) fn field_bytes(d: usize, p: &SgdParams) -> (u64, u64) {
     match &p.quant {
         // Codes never combine with fixed point, so the label is f32.
-        Some(q) => q.code_bytes() + 4,
-        None => (d as u64 + 1) * elem_bytes(&p.numeric),
+        Some(q) => (q.code_bytes(), 4),
+        None => (d as u64 * elem_bytes(&p.numeric), elem_bytes(&p.numeric)),
     }
+}
+
+/// Bytes of one record before padding: d features and the label.
+pub(super) fn payload_bytes(d: usize, p: &SgdParams) -> u64 {
+    let (features, label) = field_bytes(d, p);
+    features + label
 }
 
 /// (payload, stride) bytes of one record: d features and the label, padded to whole
