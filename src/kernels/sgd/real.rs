@@ -100,6 +100,10 @@ macro_rules! impl_real {
 impl_real!(f32, F32, Some);
 impl_real!(f64, F64, |_| None);
 
+/// Bytes of the rows of one run of samples (see [`FloatTrainer::batch`]): well inside a
+/// 32–48 KiB first-level data cache, beside the model and the gradient.
+const RUN_BYTES: usize = 16 << 10;
+
 /// The float trainer of one engine: the model `w` (d weights, then the bias), the
 /// gradient accumulators `g`, and the arithmetic's options.
 pub struct FloatTrainer<'a, T: Real, const FTZ: bool> {
@@ -138,12 +142,23 @@ impl<'a, T: Real, const FTZ: bool> FloatTrainer<'a, T, FTZ> {
     }
 
     /// Adds the gradients of the samples `mb`, in order, and writes each one's prediction
-    /// z to `z`; while sample i is read, the row of `ahead[i]` is prefetched. The
-    /// predictions come first, all of them: the model is fixed within a minibatch, so
-    /// their dependency chains (products, lane sums, tree) are independent and overlap in
-    /// the core; the gradient sums then run in sample order as the module doc states.
+    /// z to `z`; while sample i is read, the row of `ahead[i]` is prefetched. The samples
+    /// go in runs that fit the first-level cache: a run's predictions first, all of them
+    /// (the model is fixed within a minibatch, so their dependency chains — products, lane
+    /// sums, tree — are independent and overlap in the core), then its gradient sums in
+    /// sample order, re-reading rows the predictions just brought in.
     #[inline(always)]
     pub(super) fn batch<V: Wide>(&mut self, v: V, mb: &[usize], ahead: &[usize], z: &mut [f64]) {
+        let run = (RUN_BYTES / (4 * self.data.dims()).max(1)).max(1);
+        for (k, (mb, z)) in mb.chunks(run).zip(z.chunks_mut(run)).enumerate() {
+            let ahead = ahead.get(k * run..).unwrap_or(&[]);
+            self.run(v, mb, ahead, z);
+        }
+    }
+
+    /// [`FloatTrainer::batch`] for one run.
+    #[inline(always)]
+    fn run<V: Wide>(&mut self, v: V, mb: &[usize], ahead: &[usize], z: &mut [f64]) {
         let d = self.data.dims();
         let all = self.data.features.as_slice().expect("row-major features");
         let mut zs = std::mem::take(&mut self.zs);
