@@ -251,6 +251,67 @@ proptest! {
     }
 }
 
+#[test]
+fn minibatches_longer_than_a_cached_run_equal_naive() {
+    // d = 300 f32 features are 1200-byte rows, so the trainer splits each minibatch of 40
+    // into runs of 13 samples (the last one short); the naive loop takes one sample at a
+    // time. Both in 16 lanes (the explicit vector dot, with a 12-lane remainder) and f64.
+    let data = gen(200, 300, Labels::Regression, 4);
+    for f64_mode in [false, true] {
+        let numeric = if f64_mode {
+            Numeric::F64 { lanes: 16 }
+        } else {
+            f32_mode()
+        };
+        let mut p = params(Loss::Squared, 40, numeric, 2);
+        p.hyper = Hyper {
+            step: Step {
+                eta: 0.001,
+                decay: 0.1,
+            },
+            l2: 0.01,
+        };
+        let r = train(&data, &p, &ios(1)).unwrap().remove(0);
+        let got: Vec<Vec<u64>> = r
+            .epoch_models
+            .iter()
+            .map(|m| m.to_f64().iter().map(|v| v.to_bits()).collect())
+            .collect();
+        let want: Vec<Vec<u64>> = if f64_mode {
+            naive_sgd::<f64>(
+                &data,
+                Loss::Squared,
+                40,
+                p.hyper,
+                true,
+                2,
+                Order::Input,
+                16,
+                false,
+            )
+            .iter()
+            .map(|w| w.iter().map(|v| v.to_bits()).collect())
+            .collect()
+        } else {
+            naive_sgd::<f32>(
+                &data,
+                Loss::Squared,
+                40,
+                p.hyper,
+                true,
+                2,
+                Order::Input,
+                16,
+                false,
+            )
+            .iter()
+            .map(|w| w.iter().map(|&v| f64::from(v).to_bits()).collect())
+            .collect()
+        };
+        assert_eq!(got, want, "f64 mode: {f64_mode}");
+    }
+}
+
 fn all_modes_run(data: &SgdData) -> Vec<Vec<SgdEngineResult>> {
     let mut out = Vec::new();
     for numeric in [
