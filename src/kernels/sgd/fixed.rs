@@ -82,7 +82,7 @@ pub fn storage_bits(q: QFormat) -> u32 {
 /// v / 2^shift rounded by `mode` (a negative shift multiplies exactly). Stochastic
 /// rounding adds the low `shift` bits of one LFSR draw (for shift > 32, the draw shifted
 /// up to the top of the dropped bits).
-#[inline]
+#[inline(always)]
 pub fn round_shift(v: i128, shift: i32, mode: Rounding, lfsr: &mut Lfsr) -> i128 {
     if shift <= 0 {
         return v << (-shift);
@@ -134,9 +134,39 @@ pub fn div_nearest_even(num: i128, den: i128) -> i128 {
 }
 
 /// A real to `frac` fraction bits by nearest-even, then fitted to `bits` (saturating).
+#[inline]
 pub fn from_real(v: f64, frac: u32, bits: u32, count: &mut u64) -> i64 {
-    let scaled = (v * libm::exp2(f64::from(frac))).round_ties_even();
-    fit(scaled as i128, bits, Overflow::Saturate, count)
+    let scaled = round_ties_even(v * pow2(frac as i32));
+    // Integral values below 2^63 convert through i64 in one instruction; the rest (and
+    // NaN, as 0) take the saturating i128 conversion. Both give the same integer.
+    let int = if scaled.abs() < 9_223_372_036_854_775_808.0 {
+        i128::from(scaled as i64)
+    } else {
+        scaled as i128
+    };
+    fit(int, bits, Overflow::Saturate, count)
+}
+
+/// 2^e exactly, for −1022 ≤ e ≤ 1023: a power of two is its biased exponent alone
+/// (IEEE 754 binary64 layout).
+#[inline]
+pub fn pow2(e: i32) -> f64 {
+    f64::from_bits(((1023 + e) as u64) << 52)
+}
+
+/// `x` rounded to an integer, ties to even (the sign of a zero result aside): below 2^52 in
+/// magnitude, adding and then subtracting 2^52 rounds once, in the default
+/// round-to-nearest-even mode, at the units place; larger values are already integers.
+/// Common practice; it spares the library call the x86-64 baseline makes for `rint`.
+#[inline]
+fn round_ties_even(x: f64) -> f64 {
+    const TWO_52: f64 = 4_503_599_627_370_496.0;
+    if x.abs() < TWO_52 {
+        let c = TWO_52.copysign(x);
+        (x + c) - c
+    } else {
+        x
+    }
 }
 
 /// The sigmoid table in the accumulator format: entry i = ne(σ(cᵢ)·2^f_a) with cᵢ the
@@ -346,7 +376,7 @@ impl FixedTrainer {
                 &mut self.overflow.grad,
             );
         }
-        z as f64 / libm::exp2(f64::from(fa))
+        z as f64 / pow2(fa)
     }
 
     /// Applies and clears the gradient of a minibatch of `batch` samples.
@@ -400,4 +430,56 @@ pub fn average(models: &[Model]) -> Model {
         .map(|j| div_nearest_even(ws.iter().map(|w| i128::from(w[j])).sum(), e) as i64)
         .collect();
     Model::Fixed(out, models[0].elem())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use proptest::prelude::*;
+
+    #[test]
+    fn pow2_is_libm_exp2_at_every_normal_exponent() {
+        for e in -1022..=1023 {
+            assert_eq!(
+                pow2(e).to_bits(),
+                libm::exp2(f64::from(e)).to_bits(),
+                "2^{e}"
+            );
+        }
+    }
+
+    #[test]
+    fn ties_round_to_even() {
+        // IEEE 754 roundTiesToEven at the units place: 0.5 → 0, 1.5 → 2, 2.5 → 2.
+        for (x, want) in [
+            (0.5, 0.0),
+            (1.5, 2.0),
+            (2.5, 2.0),
+            (-2.5, -2.0),
+            (-3.5, -4.0),
+        ] {
+            assert_eq!(round_ties_even(x), want, "{x}");
+        }
+        assert_eq!(
+            round_ties_even(2f64.powi(60) + 4096.0),
+            2f64.powi(60) + 4096.0
+        );
+    }
+
+    proptest! {
+        #[test]
+        fn rounding_and_conversion_match_the_standard_library(
+            m in -1e6f64..1e6, e in -40i32..80, frac in 0u32..40,
+        ) {
+            let x = m * 2f64.powi(e);
+            prop_assert_eq!(round_ties_even(x), x.round_ties_even());
+            let mut a = 0;
+            let want = {
+                let mut c = 0;
+                let scaled = (x * libm::exp2(f64::from(frac))).round_ties_even();
+                (fit(scaled as i128, 48, Overflow::Saturate, &mut c), c)
+            };
+            prop_assert_eq!((from_real(x, frac, 48, &mut a), a), want);
+        }
+    }
 }
