@@ -79,13 +79,56 @@ pub fn storage_bits(q: QFormat) -> u32 {
         .unwrap_or(64)
 }
 
+/// The integer type a sample's intermediate values are held in: `i128` always holds them
+/// exactly; `i64` does for formats narrow enough ([`fits_i64`]), and is several times
+/// faster. Both give the same results, since every value is exact in either.
+pub trait Carrier:
+    Copy
+    + Ord
+    + From<i64>
+    + std::ops::Add<Output = Self>
+    + std::ops::Sub<Output = Self>
+    + std::ops::Mul<Output = Self>
+    + std::ops::Neg<Output = Self>
+    + std::ops::Shl<u32, Output = Self>
+    + std::ops::Shr<u32, Output = Self>
+    + std::ops::BitAnd<Output = Self>
+{
+    /// 1.
+    const ONE: Self;
+    /// The low 64 bits.
+    fn low64(self) -> i64;
+}
+
+impl Carrier for i64 {
+    const ONE: i64 = 1;
+    #[inline(always)]
+    fn low64(self) -> i64 {
+        self
+    }
+}
+
+impl Carrier for i128 {
+    const ONE: i128 = 1;
+    #[inline(always)]
+    fn low64(self) -> i64 {
+        self as i64
+    }
+}
+
 /// v / 2^shift rounded by `mode` (a negative shift multiplies exactly). Stochastic
 /// rounding adds the low `shift` bits of one LFSR draw (for shift > 32, the draw shifted
 /// up to the top of the dropped bits).
 #[inline(always)]
 pub fn round_shift(v: i128, shift: i32, mode: Rounding, lfsr: &mut Lfsr) -> i128 {
+    round_shift_in(v, shift, mode, lfsr)
+}
+
+/// [`round_shift`] in `I`, which must hold `v`, the result and `v` plus 2^shift.
+#[inline(always)]
+fn round_shift_in<I: Carrier>(v: I, shift: i32, mode: Rounding, lfsr: &mut Lfsr) -> I {
     if shift <= 0 {
-        return v << (-shift);
+        return v << (-shift) as u32;
     }
     let k = shift as u32;
     match mode {
@@ -93,13 +136,17 @@ pub fn round_shift(v: i128, shift: i32, mode: Rounding, lfsr: &mut Lfsr) -> i128
         Rounding::NearestEven => {
             let q = v >> k;
             let rem = v - (q << k);
-            let half = 1i128 << (k - 1);
-            q + i128::from(rem > half || (rem == half && q & 1 == 1))
+            let half = I::ONE << (k - 1);
+            if rem > half || (rem == half && q & I::ONE == I::ONE) {
+                q + I::ONE
+            } else {
+                q
+            }
         }
         Rounding::Stochastic => {
-            let r = i128::from(lfsr.draw());
+            let r = I::from(i64::from(lfsr.draw()));
             let r = if k <= 32 {
-                r & ((1 << k) - 1)
+                r & ((I::ONE << k) - I::ONE)
             } else {
                 r << (k - 32)
             };
@@ -109,21 +156,50 @@ pub fn round_shift(v: i128, shift: i32, mode: Rounding, lfsr: &mut Lfsr) -> i128
 }
 
 /// `v` in `bits` signed bits; an out-of-range value saturates or wraps and counts once.
-#[inline]
+#[inline(always)]
 pub fn fit(v: i128, bits: u32, mode: Overflow, count: &mut u64) -> i64 {
-    let hi = (1i128 << (bits - 1)) - 1;
-    let lo = -hi - 1;
-    if (lo..=hi).contains(&v) {
-        return v as i64;
+    fit_in(v, bits, mode, count)
+}
+
+/// [`fit`] in `I`, which must hold 2^bits.
+#[inline(always)]
+fn fit_in<I: Carrier>(v: I, bits: u32, mode: Overflow, count: &mut u64) -> i64 {
+    let hi = (I::ONE << (bits - 1)) - I::ONE;
+    let lo = -hi - I::ONE;
+    if lo <= v && v <= hi {
+        return v.low64();
     }
     *count += 1;
     match mode {
-        Overflow::Saturate => v.clamp(lo, hi) as i64,
+        Overflow::Saturate => v.clamp(lo, hi).low64(),
         Overflow::Wrap => {
-            let m = v & ((1i128 << bits) - 1);
-            (if m > hi { m - (1i128 << bits) } else { m }) as i64
+            let m = v & ((I::ONE << bits) - I::ONE);
+            (if m > hi { m - (I::ONE << bits) } else { m }).low64()
         }
     }
+}
+
+/// Whether every intermediate value of a sample ([`FixedTrainer`]'s products, shifted
+/// terms, sums and their stochastic-rounding offsets) stays below 2^62 in magnitude, so
+/// `i64` holds it: each term's bits, plus those a negative shift adds, at most 61, and the
+/// accumulator at most 62 bits wide (its wrap forms 2^bits).
+pub fn fits_i64(s: &FixedSpec) -> bool {
+    let (wd, wm, wa) = (
+        width(s.data) as i32,
+        width(s.model) as i32,
+        width(s.acc) as i32,
+    );
+    let (fd, fm, fa) = (
+        s.data.frac_bits as i32,
+        s.model.frac_bits as i32,
+        s.acc.frac_bits as i32,
+    );
+    let grown = |bits: i32, shift: i32| bits + (-shift).max(0);
+    wa <= 62
+        && grown(wd + wm - 2, fd + fm - fa) <= 61
+        && grown(wm - 1, fm - fa) <= 61
+        && grown(wd - 1, fd - fa) <= 61
+        && wa + wd - 2 <= 61
 }
 
 /// num / den (den > 0) rounded to nearest, ties to even.
@@ -281,6 +357,8 @@ pub struct FixedTrainer {
     lfsr: Lfsr,
     /// Overflow events so far.
     pub overflow: OverflowCounts,
+    /// Whether samples run in `i64` ([`fits_i64`]) rather than `i128`.
+    narrow: bool,
 }
 
 impl FixedTrainer {
@@ -309,6 +387,7 @@ impl FixedTrainer {
             g: vec![0; m],
             lfsr: Lfsr(spec.lfsr_seed.max(1)),
             overflow,
+            narrow: fits_i64(&spec),
         }
     }
 
@@ -320,7 +399,18 @@ impl FixedTrainer {
     }
 
     /// Adds sample `r`'s gradient; returns z as a real.
+    #[inline]
     pub fn sample(&mut self, r: usize) -> f64 {
+        if self.narrow {
+            self.sample_in::<i64>(r)
+        } else {
+            self.sample_in::<i128>(r)
+        }
+    }
+
+    /// [`FixedTrainer::sample`] with intermediates in `I`.
+    #[inline(always)]
+    fn sample_in<I: Carrier>(&mut self, r: usize) -> f64 {
         let s = self.spec;
         let (fd, fm, fa) = (
             s.data.frac_bits as i32,
@@ -332,45 +422,40 @@ impl FixedTrainer {
         let (x, y) = (&row[..self.d], row[self.d]);
         let mut acc: i64 = 0;
         for (&xj, &wj) in x.iter().zip(&self.w) {
-            let p = round_shift(
-                i128::from(xj) * i128::from(wj),
-                fd + fm - fa,
-                rm,
-                &mut self.lfsr,
-            );
-            acc = fit(i128::from(acc) + p, ba, ov, &mut self.overflow.dot);
+            let p = round_shift_in(I::from(xj) * I::from(wj), fd + fm - fa, rm, &mut self.lfsr);
+            acc = fit_in(I::from(acc) + p, ba, ov, &mut self.overflow.dot);
         }
         if self.bias {
-            let b = round_shift(i128::from(self.w[self.d]), fm - fa, rm, &mut self.lfsr);
-            acc = fit(i128::from(acc) + b, ba, ov, &mut self.overflow.dot);
+            let b = round_shift_in(I::from(self.w[self.d]), fm - fa, rm, &mut self.lfsr);
+            acc = fit_in(I::from(acc) + b, ba, ov, &mut self.overflow.dot);
         }
         let z = acc;
-        let ya = round_shift(i128::from(y), fd - fa, rm, &mut self.lfsr);
+        let ya = round_shift_in(I::from(y), fd - fa, rm, &mut self.lfsr);
         let g = match self.loss {
-            Loss::Squared => fit(i128::from(z) - ya, ba, ov, &mut self.overflow.grad),
-            Loss::Logistic => fit(
-                i128::from(sigmoid(z, &self.lut, &s)) - ya,
+            Loss::Squared => fit_in(I::from(z) - ya, ba, ov, &mut self.overflow.grad),
+            Loss::Logistic => fit_in(
+                I::from(sigmoid(z, &self.lut, &s)) - ya,
                 ba,
                 ov,
                 &mut self.overflow.grad,
             ),
             Loss::Hinge => {
-                let one = 1i128 << fa;
-                let margin = if y > 0 { i128::from(z) } else { -i128::from(z) };
+                let one = I::ONE << fa as u32;
+                let margin = if y > 0 { I::from(z) } else { -I::from(z) };
                 if margin < one {
-                    fit(-ya, ba, ov, &mut self.overflow.grad)
+                    fit_in(-ya, ba, ov, &mut self.overflow.grad)
                 } else {
                     0
                 }
             }
         };
         for (gj, &xj) in self.g.iter_mut().zip(x) {
-            let p = round_shift(i128::from(g) * i128::from(xj), fd, rm, &mut self.lfsr);
-            *gj = fit(i128::from(*gj) + p, ba, ov, &mut self.overflow.grad);
+            let p = round_shift_in(I::from(g) * I::from(xj), fd, rm, &mut self.lfsr);
+            *gj = fit_in(I::from(*gj) + p, ba, ov, &mut self.overflow.grad);
         }
         if self.bias {
-            self.g[self.d] = fit(
-                i128::from(self.g[self.d]) + i128::from(g),
+            self.g[self.d] = fit_in(
+                I::from(self.g[self.d]) + I::from(g),
                 ba,
                 ov,
                 &mut self.overflow.grad,
@@ -467,6 +552,48 @@ mod tests {
     }
 
     proptest! {
+        /// Samples in `i64` give what they give in `i128`, bit for bit, with every
+        /// rounding, overflow rule and loss, on formats narrow enough for `i64` (narrow
+        /// accumulators, so that overflows happen too).
+        #[test]
+        fn i64_samples_equal_i128_samples(
+            (id, fd) in (1u32..8).prop_flat_map(|i| (Just(i), 0u32..10)),
+            (im, fm) in (1u32..12).prop_flat_map(|i| (Just(i), 0u32..24)),
+            (ia, fa) in (1u32..12).prop_flat_map(|i| (Just(i), 0u32..24)),
+            mode in 0usize..3, wrap: bool, loss in 0usize..3, seed in 1u32..1000,
+            values in prop::collection::vec(-3.0f32..3.0, 6 * 24),
+        ) {
+            let q = |int_bits, frac_bits| QFormat { int_bits, frac_bits };
+            let spec = FixedSpec {
+                data: q(id, fd),
+                model: q(im, fm),
+                acc: q(ia, fa),
+                rounding: [Rounding::Truncate, Rounding::NearestEven, Rounding::Stochastic][mode],
+                overflow: if wrap { Overflow::Wrap } else { Overflow::Saturate },
+                lfsr_seed: seed,
+                sigmoid_bits: 6,
+            };
+            prop_assume!(fits_i64(&spec));
+            let loss = [Loss::Squared, Loss::Logistic, Loss::Hinge][loss];
+            let x = ndarray::Array2::from_shape_vec((24, 5), values[..120].to_vec()).unwrap();
+            let y = ndarray::Array1::from_iter(values[120..].iter().map(|v| v.signum()));
+            let data = SgdData { features: x, labels: y };
+            let mut narrow = FixedTrainer::new(&data, spec, loss, true);
+            let mut wide = FixedTrainer::new(&data, spec, loss, true);
+            prop_assert!(narrow.narrow);
+            wide.narrow = false;
+            for r in 0..24 {
+                prop_assert_eq!(narrow.sample(r).to_bits(), wide.sample(r).to_bits(), "sample {}", r);
+                if r % 4 == 3 {
+                    narrow.update(0.5, 0.01, 4);
+                    wide.update(0.5, 0.01, 4);
+                }
+            }
+            prop_assert_eq!(&narrow.w, &wide.w);
+            prop_assert_eq!(narrow.overflow, wide.overflow);
+            prop_assert_eq!(narrow.lfsr, wide.lfsr);
+        }
+
         #[test]
         fn rounding_and_conversion_match_the_standard_library(
             m in -1e6f64..1e6, e in -40i32..80, frac in 0u32..40,
