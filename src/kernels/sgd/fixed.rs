@@ -1,8 +1,9 @@
 //! Bit-true fixed point: signed Q formats (Qi.f holds v/2^f in 1 + i + f bits), the
 //! rounding modes, overflow handling with counts, the sigmoid table, and the fixed-point
-//! trainer. Values are held in `i64`, intermediate products and sums in `i128` exactly;
-//! a value leaves `i128` only through [`round_shift`] (dropping fraction bits) and
-//! [`fit`] (to a width, saturating or wrapping).
+//! trainer. Values are held in `i64`, intermediate products and sums exactly in `i128`
+//! (or in `i64` when the formats keep them below 2^62, see [`fits_i64`]); a value leaves
+//! the wider type only through [`round_shift`] (dropping fraction bits) and [`fit`] (to a
+//! width, saturating or wrapping).
 //!
 //! Per sample (data Q_d with fraction f_d, model Q_m/f_m, accumulator Q_a/f_a):
 //! ```text
