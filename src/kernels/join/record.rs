@@ -142,9 +142,9 @@ impl RecordWriter {
     ) {
         assert!(n <= BATCH, "{n} records in one batch");
         let rb = self.record_bytes;
-        let at = out.len();
-        out.resize(at + n * rb, 0);
-        let recs = &mut out[at..];
+        // Packed in cache, then appended a line at a time with streaming stores.
+        let mut stage = [0u8; BATCH * 8 * MAX_FIELDS];
+        let recs = &mut stage[..n * rb];
         let mut values = [0u64; BATCH];
         let mut off = 0;
         for &(f, w) in &self.fields {
@@ -156,6 +156,7 @@ impl RecordWriter {
             }
             off += w;
         }
+        crate::kernels::hints::extend_streaming(out, recs);
     }
 }
 
