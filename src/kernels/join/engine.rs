@@ -11,7 +11,8 @@
 //! Chunks are [`CHUNK_ROWS`] rows and start on word boundaries of word-aligned images, so
 //! per-chunk word counts add up exactly; chunk results are emitted in chunk order, a wave
 //! of chunks at a time, so output and ledger do not depend on the thread count and no
-//! more than a wave of output is held at once.
+//! more than a wave of output is held at once. Inner-join matches wait in a batch of
+//! [`BATCH`] and are written in probe order, so batching changes no byte.
 
 use rayon::prelude::*;
 

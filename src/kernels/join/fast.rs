@@ -173,4 +173,12 @@ mod tests {
         t.probe_all(&[42u64], 1, |_, p| got.push(p));
         assert_eq!(got, (0..12).collect::<Vec<u64>>());
     }
+
+    #[test]
+    fn keys_past_n_are_prefetched_only() {
+        let t = FastTable::build(&[1, 2, 3], &[10, 20, 30]);
+        let mut got = Vec::new();
+        t.probe_all(&[3u64, 1, 2, 2, 1], 2, |r, p| got.push((r, p)));
+        assert_eq!(got, vec![(0, 30), (1, 10)]);
+    }
 }
