@@ -338,6 +338,8 @@ fn edge_cases() {
     let some = table("s", vec![1, 2, 3], vec![10, 20, 30], true);
     assert_eq!(mirror(&empty, &some, &p).unwrap(), (vec![], 0));
     assert_eq!(mirror(&some, &empty, &p).unwrap(), (vec![], 0));
+    assert_eq!(fast(&empty, &some, &p), (vec![], 0));
+    assert_eq!(fast(&some, &empty, &p), (vec![], 0));
     let none = table("n", vec![7, 8], vec![0, 0], true);
     assert_eq!(mirror(&some, &none, &p).unwrap().1, 0);
     let all = table("a", vec![3, 1, 2, 1], vec![0; 4], true);
@@ -561,4 +563,24 @@ fn narrow_keys_and_payloads_are_widened_and_read_at_their_own_width() {
             && k.direction == Direction::Read
     });
     assert_eq!(probe_read.bytes, 500 * 2 * 2);
+}
+
+#[test]
+fn matches_past_one_batch_keep_probe_and_build_order() {
+    // 300 build tuples of key 9 give every probe row of key 9 more matches than the driver
+    // gathers before writing records (256), so rows and batches end at different places.
+    let sk: Vec<u64> = (0..400).map(|i| if i % 4 == 3 { i } else { 9 }).collect();
+    let lk: Vec<u64> = (0..50)
+        .map(|i| if i % 3 == 0 { 1000 + i } else { 9 })
+        .collect();
+    for wide in [false, true] {
+        let b = table("s", sk.clone(), (0..400).collect(), wide);
+        let l = table("l", lk.clone(), (0..50).map(|i| i * 7).collect(), wide);
+        let p = params(wide);
+        let plan = plan_blocks(400, &p).unwrap();
+        let oracle = nested_loop_join(&b, &l, 0, &p, &plan).unwrap();
+        assert!(oracle.1 > 300 * 30, "{} records", oracle.1);
+        assert_eq!(mirror(&b, &l, &p).unwrap(), oracle);
+        assert_eq!(fast(&b, &l, &p), oracle);
+    }
 }

@@ -1,6 +1,7 @@
 //! What the kernels ask of the memory system: cache-line prefetches ahead of a stream or
-//! a random probe, and huge pages under tables that are probed at random. Both are hints:
-//! they change speed, never a result.
+//! a random probe, huge pages under tables that are probed at random, and streaming
+//! stores for output that is written once. All are hints: they change speed, never a
+//! result.
 
 /// Hints the cache to fetch the line holding `items[i]` (nothing when `i` is out of range).
 #[inline(always)]
@@ -60,9 +61,71 @@ pub fn huge_vec<T>(n: usize) -> Vec<T> {
     v
 }
 
+/// Appends `bytes` to `out`, storing the whole 64-byte memory lines among them with
+/// streaming stores: output far larger than the caches then is not read from memory
+/// before it is overwritten, as a plain store's line fill would. The partial lines at
+/// either end get plain stores. Ends with a store fence, so the bytes are ordered before
+/// whatever hands `out` on.
+#[inline]
+pub fn extend_streaming(out: &mut Vec<u8>, bytes: &[u8]) {
+    #[cfg(target_arch = "x86_64")]
+    {
+        use std::arch::x86_64::{__m128i, _mm_loadu_si128, _mm_sfence, _mm_stream_si128};
+        out.reserve(bytes.len());
+        let at = out.len();
+        let spare = &mut out.spare_capacity_mut()[..bytes.len()];
+        let head = (spare.as_ptr() as usize).wrapping_neg() % 64;
+        let head = head.min(bytes.len());
+        let lines = (bytes.len() - head) / 64;
+        let (first, rest) = spare.split_at_mut(head);
+        let (mid, last) = rest.split_at_mut(lines * 64);
+        let plain = |dst: &mut [std::mem::MaybeUninit<u8>], src: &[u8]| {
+            for (d, &s) in dst.iter_mut().zip(src) {
+                d.write(s);
+            }
+        };
+        plain(first, &bytes[..head]);
+        for (l, src) in bytes[head..head + lines * 64].chunks_exact(64).enumerate() {
+            for q in 0..4 {
+                // SAFETY: SSE2 is part of x86_64. The source is 16 bytes inside `src`;
+                // the destination is 16 bytes inside `mid`, a run of whole lines that
+                // starts on a 64-byte boundary, so it is 16-byte aligned as the streaming
+                // store needs.
+                unsafe {
+                    let v = _mm_loadu_si128(src.as_ptr().add(16 * q).cast::<__m128i>());
+                    _mm_stream_si128(mid.as_mut_ptr().add(64 * l + 16 * q).cast(), v);
+                }
+            }
+        }
+        plain(last, &bytes[head + lines * 64..]);
+        // SAFETY: SSE2 is part of x86_64; every byte of `spare` was written above.
+        unsafe {
+            _mm_sfence();
+            out.set_len(at + bytes.len());
+        }
+    }
+    #[cfg(not(target_arch = "x86_64"))]
+    out.extend_from_slice(bytes);
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn streaming_appends_equal_plain_appends() {
+        // Every start offset within a line and lengths around whole lines.
+        let src: Vec<u8> = (0..300u32).map(|i| (i * 7 + 1) as u8).collect();
+        for lead in 0..70 {
+            for len in [0, 1, 15, 63, 64, 65, 127, 128, 129, 200, 300] {
+                let mut a = vec![9u8; lead];
+                let mut b = a.clone();
+                extend_streaming(&mut a, &src[..len]);
+                b.extend_from_slice(&src[..len]);
+                assert_eq!(a, b, "lead {lead}, len {len}");
+            }
+        }
+    }
 
     #[test]
     fn a_huge_vector_is_an_ordinary_empty_vector() {

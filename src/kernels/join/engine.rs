@@ -11,14 +11,15 @@
 //! Chunks are [`CHUNK_ROWS`] rows and start on word boundaries of word-aligned images, so
 //! per-chunk word counts add up exactly; chunk results are emitted in chunk order, a wave
 //! of chunks at a time, so output and ledger do not depend on the thread count and no
-//! more than a wave of output is held at once.
+//! more than a wave of output is held at once. Inner-join matches wait in a batch of
+//! [`BATCH`] and are written in probe order, so batching changes no byte.
 
 use rayon::prelude::*;
 
 use super::block::BlockPlan;
 use super::error::JoinError;
-use super::params::{JoinIo, JoinParams, Variant};
-use super::record::RecordWriter;
+use super::params::{JoinIo, JoinParams, OutField, Variant};
+use super::record::{RecordWriter, BATCH};
 use crate::ledger::{Cursor, Direction, Key, Ledger, Phase, Region, Traffic};
 use crate::table::{Column, ColumnData, ElemType, Table};
 
@@ -58,6 +59,20 @@ impl<'a> Col<'a> {
             Col::U16(v) => v.len(),
             Col::U32(v) => v.len(),
             Col::U64(v) => v.len(),
+        }
+    }
+    /// `out[i] = self.get(offset + rows[i])`, with one dispatch on the type for them all.
+    fn gather(&self, offset: usize, rows: &[u32], out: &mut [u64]) {
+        fn each<T: Copy + Into<u64>>(v: &[T], rows: &[u32], out: &mut [u64]) {
+            for (o, &r) in out.iter_mut().zip(rows) {
+                *o = v[r as usize].into();
+            }
+        }
+        match self {
+            Col::U8(v) => each(&v[offset..], rows, out),
+            Col::U16(v) => each(&v[offset..], rows, out),
+            Col::U32(v) => each(&v[offset..], rows, out),
+            Col::U64(v) => each(&v[offset..], rows, out),
         }
     }
     fn slice(&self, r: std::ops::Range<usize>) -> Col<'a> {
@@ -156,9 +171,16 @@ impl<'a> Cols<'a> {
 
 /// A built block table the driver can probe.
 pub(crate) trait BlockTable: Sync {
-    /// Calls `hit(row, build payload)` per match, rows in order, a row's matches in build
-    /// order; counts on-chip reads into `onchip`.
-    fn probe_rows(&self, keys: Col<'_>, onchip: &mut Traffic, hit: impl FnMut(usize, u64));
+    /// Probes the first `n` of `keys`, calling `hit(row, build payload)` per match, rows
+    /// in order, a row's matches in build order; counts on-chip reads into `onchip`. The
+    /// keys after `n` are the ones probed next, for prefetching only.
+    fn probe_rows(
+        &self,
+        keys: Col<'_>,
+        n: usize,
+        onchip: &mut Traffic,
+        hit: impl FnMut(usize, u64),
+    );
 }
 
 /// What the driver returns.
@@ -458,8 +480,7 @@ fn probe_chunk<T: BlockTable>(
             writer,
             p,
             start,
-            rows.clone(),
-            chunk.start,
+            (rows.clone(), &chunk),
             seen,
             &mut o.buf,
             &mut onchip,
@@ -481,7 +502,50 @@ fn probe_chunk<T: BlockTable>(
     o.pay = pc.traffic;
 }
 
-/// Probes `rows`; returns (records, matches).
+/// Inner-join matches waiting for their records: rows (from `base`) and build payloads.
+struct Pending<'c, 'a> {
+    cols: &'c Cols<'a>,
+    writer: &'c RecordWriter,
+    /// Probe row id of partition row 0, and the partition row of row 0 here.
+    start: u64,
+    base: usize,
+    rows: [u32; BATCH],
+    pays: [u64; BATCH],
+    n: usize,
+}
+
+impl Pending<'_, '_> {
+    #[inline(always)]
+    fn push(&mut self, row: usize, pay: u64, buf: &mut Vec<u8>) {
+        self.rows[self.n] = row as u32;
+        self.pays[self.n] = pay;
+        self.n += 1;
+        if self.n == BATCH {
+            self.write(buf);
+        }
+    }
+
+    /// Writes the pending records. Out of line, so the probe loop that pushes stays small
+    /// enough to keep its prefetches and compares in registers.
+    #[inline(never)]
+    fn write(&mut self, buf: &mut Vec<u8>) {
+        let (rows, pays) = (&self.rows[..self.n], &self.pays[..self.n]);
+        let (start, base, cols) = (self.start, self.base, self.cols);
+        self.writer.write_batch(buf, self.n, |f, v| match f {
+            OutField::ProbeRowId => {
+                for (v, &r) in v.iter_mut().zip(rows) {
+                    *v = start + (base + r as usize) as u64;
+                }
+            }
+            OutField::Key => cols.pkey.gather(base, rows, v),
+            OutField::ProbePayload => cols.ppay.gather(base, rows, v),
+            OutField::BuildPayload => v.copy_from_slice(pays),
+        });
+        self.n = 0;
+    }
+}
+
+/// Probes `rows` of `chunk`; returns (records, matches).
 #[allow(clippy::too_many_arguments)]
 fn probe_rows<T: BlockTable>(
     cols: &Cols<'_>,
@@ -489,29 +553,35 @@ fn probe_rows<T: BlockTable>(
     writer: &RecordWriter,
     p: &JoinParams,
     start: u64,
-    rows: std::ops::Range<usize>,
-    chunk_start: usize,
+    (rows, chunk): (std::ops::Range<usize>, &std::ops::Range<usize>),
     seen: &mut [u64],
     buf: &mut Vec<u8>,
     onchip: &mut Traffic,
 ) -> (u64, u64) {
-    let keys = cols.pkey.slice(rows.clone());
+    // The rest of the chunk rides along, so prefetches run ahead across sub-slices.
+    let keys = cols.pkey.slice(rows.start..chunk.end);
+    let n = rows.len();
     let (mut records, mut matches) = (0u64, 0u64);
     let base = rows.start;
-    let seen_off = base - chunk_start;
+    let seen_off = base - chunk.start;
     match p.variant {
-        Variant::Inner(_) => table.probe_rows(keys, onchip, |r, spay| {
-            let row = base + r;
-            writer.write(
-                buf,
-                start + row as u64,
-                keys.get(r),
-                cols.ppay.get(row),
-                spay,
-            );
-            matches += 1;
-        }),
-        Variant::Semi => table.probe_rows(keys, onchip, |r, _| {
+        Variant::Inner(_) => {
+            let mut pending = Pending {
+                cols,
+                writer,
+                start,
+                base,
+                rows: [0; BATCH],
+                pays: [0; BATCH],
+                n: 0,
+            };
+            table.probe_rows(keys, n, onchip, |r, spay| {
+                pending.push(r, spay, buf);
+                matches += 1;
+            });
+            pending.write(buf);
+        }
+        Variant::Semi => table.probe_rows(keys, n, onchip, |r, _| {
             matches += 1;
             let (w, bit) = ((seen_off + r) / 64, 1u64 << ((seen_off + r) % 64));
             if seen[w] & bit == 0 {
@@ -520,7 +590,7 @@ fn probe_rows<T: BlockTable>(
                 records += 1;
             }
         }),
-        Variant::Count => table.probe_rows(keys, onchip, |_, _| matches += 1),
+        Variant::Count => table.probe_rows(keys, n, onchip, |_, _| matches += 1),
     }
     if matches!(p.variant, Variant::Inner(_)) {
         records = matches;

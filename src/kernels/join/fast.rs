@@ -98,14 +98,21 @@ impl FastTable {
         crate::kernels::hints::prefetch(&self.buckets, self.home(key));
     }
 
-    /// Calls `hit(row, payload)` for each matching tuple of each probe key, rows in
-    /// order and a row's matches in build order.
+    /// Calls `hit(row, payload)` for each matching tuple of each of the first `n` probe
+    /// keys, rows in order and a row's matches in build order. Keys past `n` are only
+    /// prefetched, so a caller probing a long run piece by piece keeps the prefetches in
+    /// flight across pieces.
     #[inline]
-    pub fn probe_all<K: Copy + Into<u64>>(&self, keys: &[K], mut hit: impl FnMut(usize, u64)) {
+    pub fn probe_all<K: Copy + Into<u64>>(
+        &self,
+        keys: &[K],
+        n: usize,
+        mut hit: impl FnMut(usize, u64),
+    ) {
         for &k in keys.iter().take(PREFETCH_AHEAD) {
             self.prefetch(k.into());
         }
-        for (r, &k) in keys.iter().enumerate() {
+        for (r, &k) in keys[..n].iter().enumerate() {
             if let Some(&ahead) = keys.get(r + PREFETCH_AHEAD) {
                 self.prefetch(ahead.into());
             }
@@ -150,7 +157,7 @@ mod tests {
     fn duplicates_in_build_order() {
         let t = FastTable::build(&[7, 3, 7, u64::MAX, 7], &[1, 2, 3, 4, 5]);
         let mut got = Vec::new();
-        t.probe_all(&[7u64, 9, u64::MAX, 3, u64::MAX - 5], |r, p| {
+        t.probe_all(&[7u64, 9, u64::MAX, 3, u64::MAX - 5], 5, |r, p| {
             got.push((r, p))
         });
         assert_eq!(got, vec![(0, 1), (0, 3), (0, 5), (2, 4), (3, 2)]);
@@ -163,7 +170,15 @@ mod tests {
         let pays: Vec<u64> = (0..keys.len() as u64).collect();
         let t = FastTable::build(&keys, &pays);
         let mut got = Vec::new();
-        t.probe_all(&[42u64], |_, p| got.push(p));
+        t.probe_all(&[42u64], 1, |_, p| got.push(p));
         assert_eq!(got, (0..12).collect::<Vec<u64>>());
+    }
+
+    #[test]
+    fn keys_past_n_are_prefetched_only() {
+        let t = FastTable::build(&[1, 2, 3], &[10, 20, 30]);
+        let mut got = Vec::new();
+        t.probe_all(&[3u64, 1, 2, 2, 1], 2, |r, p| got.push((r, p)));
+        assert_eq!(got, vec![(0, 30), (1, 10)]);
     }
 }

@@ -60,16 +60,21 @@ pub struct JoinEngineResult {
 
 impl BlockTable for MirrorTable {
     #[inline]
-    fn probe_rows(&self, keys: Col<'_>, onchip: &mut Traffic, mut hit: impl FnMut(usize, u64)) {
-        let n = keys.len();
+    fn probe_rows(
+        &self,
+        keys: Col<'_>,
+        n: usize,
+        onchip: &mut Traffic,
+        mut hit: impl FnMut(usize, u64),
+    ) {
         // Bucket reads prefetched a few rows ahead, as the fast table does: the golden
         // join should never be the slow step.
         const AHEAD: usize = 8;
-        for r in 0..n.min(AHEAD) {
+        for r in 0..keys.len().min(AHEAD) {
             self.prefetch(keys.get(r));
         }
         for r in 0..n {
-            if r + AHEAD < n {
+            if r + AHEAD < keys.len() {
                 self.prefetch(keys.get(r + AHEAD));
             }
             self.probe(keys.get(r), onchip, |pay| hit(r, pay));
@@ -79,12 +84,18 @@ impl BlockTable for MirrorTable {
 
 impl BlockTable for FastTable {
     #[inline]
-    fn probe_rows(&self, keys: Col<'_>, _onchip: &mut Traffic, hit: impl FnMut(usize, u64)) {
+    fn probe_rows(
+        &self,
+        keys: Col<'_>,
+        n: usize,
+        _onchip: &mut Traffic,
+        hit: impl FnMut(usize, u64),
+    ) {
         match keys {
-            Col::U8(v) => self.probe_all(v, hit),
-            Col::U16(v) => self.probe_all(v, hit),
-            Col::U32(v) => self.probe_all(v, hit),
-            Col::U64(v) => self.probe_all(v, hit),
+            Col::U8(v) => self.probe_all(v, n, hit),
+            Col::U16(v) => self.probe_all(v, n, hit),
+            Col::U32(v) => self.probe_all(v, n, hit),
+            Col::U64(v) => self.probe_all(v, n, hit),
         }
     }
 }
