@@ -6,6 +6,7 @@
 
 #![deny(unsafe_op_in_unsafe_fn)]
 
+pub mod alloc;
 pub mod bench;
 pub mod check;
 pub mod error;
@@ -26,3 +27,7 @@ pub mod table;
 pub mod tables;
 
 pub use error::{Error, ErrorKind, Result};
+
+/// Every program that links weir allocates through [`alloc::Placed`].
+#[global_allocator]
+static ALLOCATOR: alloc::Placed = alloc::Placed;

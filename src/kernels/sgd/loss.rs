@@ -33,11 +33,33 @@ impl Loss {
 
     /// ℓ(z, y) in `f64`; the logistic form is the overflow-free
     /// max(z, 0) + ln(1 + e^−|z|) − y·z.
+    #[inline(always)]
     pub fn value(self, z: f64, y: f64) -> f64 {
         match self {
             Loss::Squared => 0.5 * (z - y) * (z - y),
             Loss::Logistic => z.max(0.0) + libm::log1p(libm::exp(-z.abs())) - y * z,
             Loss::Hinge => (1.0 - y * z).max(0.0),
+        }
+    }
+
+    /// `acc + ℓ(z₀, y₀) + ℓ(z₁, y₁) + …`, one `f64` sum per term in order. The loss is
+    /// chosen once for all the terms, and the sum is a call of its own, so the running sum
+    /// stays in a register (inlined into a large pass it was kept in memory, a store and a
+    /// reload on every term's dependency chain).
+    #[inline(never)]
+    pub fn add_values(self, acc: f64, z: &[f64], y: impl Iterator<Item = f64>) -> f64 {
+        fn fold(
+            acc: f64,
+            z: &[f64],
+            y: impl Iterator<Item = f64>,
+            f: impl Fn(f64, f64) -> f64,
+        ) -> f64 {
+            z.iter().zip(y).fold(acc, |a, (&z, y)| a + f(z, y))
+        }
+        match self {
+            Loss::Squared => fold(acc, z, y, |z, y| Loss::Squared.value(z, y)),
+            Loss::Logistic => fold(acc, z, y, |z, y| Loss::Logistic.value(z, y)),
+            Loss::Hinge => fold(acc, z, y, |z, y| Loss::Hinge.value(z, y)),
         }
     }
 

@@ -186,9 +186,8 @@ pub(super) fn stream<S: Trains, V: Wide>(
         for run in mb.chunk_by(|a, b| b.checked_sub(*a) == Some(1)) {
             c.reads.read((run[0] - start) as u64, run.len() as u64);
         }
-        for (&r, &zi) in mb.iter().zip(&z) {
-            loss += p.loss.value(zi, f64::from(plan.data.labels[r]));
-        }
+        let labels = mb.iter().map(|&r| f64::from(plan.data.labels[r]));
+        loss = p.loss.add_values(loss, &z[..mb.len()], labels);
         t.update(hyper.step.at(*updates), hyper.l2, mb.len());
         // Each sample reads the model, and the update reads and writes it.
         c.model_r += c.model_t.times(mb.len() as u64 + 1);

@@ -39,10 +39,12 @@ pub trait Real: Copy + Send + Sync + PartialOrd + 'static {
     fn weights(m: &Model) -> Vec<Self>;
     /// The values as `f32`s, if this is `f32`.
     fn as_f32s(v: &[Self]) -> Option<&[f32]>;
+    /// The values as mutable `f32`s, if this is `f32`.
+    fn as_f32s_mut(v: &mut [Self]) -> Option<&mut [f32]>;
 }
 
 macro_rules! impl_real {
-    ($t:ty, $variant:ident, $as_f32s:expr) => {
+    ($t:ty, $variant:ident, $as_f32s:expr, $as_f32s_mut:expr) => {
         impl Real for $t {
             const ZERO: Self = 0.0;
             #[inline(always)]
@@ -94,11 +96,15 @@ macro_rules! impl_real {
             fn as_f32s(v: &[Self]) -> Option<&[f32]> {
                 $as_f32s(v)
             }
+            #[inline(always)]
+            fn as_f32s_mut(v: &mut [Self]) -> Option<&mut [f32]> {
+                $as_f32s_mut(v)
+            }
         }
     };
 }
-impl_real!(f32, F32, Some);
-impl_real!(f64, F64, |_| None);
+impl_real!(f32, F32, Some, Some);
+impl_real!(f64, F64, |_| None, |_| None);
 
 /// Bytes of the rows of one run of samples (see [`FloatTrainer::batch`]): well inside a
 /// 32–48 KiB first-level data cache, beside the model and the gradient.
@@ -178,17 +184,31 @@ impl<'a, T: Real, const FTZ: bool> FloatTrainer<'a, T, FTZ> {
             }
             *zi = dot;
         }
-        for ((&r, &zi), out) in mb.iter().zip(&zs).zip(z.iter_mut()) {
-            let x = &all[r * d..(r + 1) * d];
-            let y = Self::fl(T::from_f32(self.data.labels[r]));
-            let gz = Self::fl(self.loss.dz(zi, y));
-            for (gj, &xj) in self.g[..d].iter_mut().zip(x) {
-                *gj = Self::fl(gj.add(Self::fl(gz.mul(Self::fl(T::from_f32(xj))))));
+        if FTZ || T::as_f32s(&zs).is_none() {
+            for ((&r, &zi), out) in mb.iter().zip(&zs).zip(z.iter_mut()) {
+                let x = &all[r * d..(r + 1) * d];
+                let y = Self::fl(T::from_f32(self.data.labels[r]));
+                let gz = Self::fl(self.loss.dz(zi, y));
+                for (gj, &xj) in self.g[..d].iter_mut().zip(x) {
+                    *gj = Self::fl(gj.add(Self::fl(gz.mul(Self::fl(T::from_f32(xj))))));
+                }
+                if self.bias {
+                    self.g[d] = Self::fl(self.g[d].add(gz));
+                }
+                *out = zi.to_f64();
             }
-            if self.bias {
-                self.g[d] = Self::fl(self.g[d].add(gz));
+        } else {
+            // f32 without flush: the derivatives first, then the gradient sums column block
+            // by column block (the same operations in the same order per coordinate).
+            for ((&r, zi), out) in mb.iter().zip(zs.iter_mut()).zip(z.iter_mut()) {
+                *out = zi.to_f64();
+                *zi = self.loss.dz(*zi, T::from_f32(self.data.labels[r]));
+                if self.bias {
+                    self.g[d] = self.g[d].add(*zi);
+                }
             }
-            *out = zi.to_f64();
+            let (g, s) = (T::as_f32s_mut(&mut self.g[..d]), T::as_f32s(&zs));
+            v.add_scaled(g.expect("f32"), all, d, mb, s.expect("f32"));
         }
         self.zs = zs;
     }
