@@ -252,6 +252,15 @@ impl Ledger {
         }
     }
 
+    /// The same counters under the keys `f` gives (counters whose new keys coincide add).
+    pub fn rekeyed(&self, f: impl Fn(Key) -> Key) -> Ledger {
+        let mut out = Ledger::new();
+        for (k, t) in &self.entries {
+            out.add(f(*k), *t);
+        }
+        out
+    }
+
     /// The entries in key order.
     pub fn entries(&self) -> impl Iterator<Item = (&Key, &Traffic)> {
         self.entries.iter()

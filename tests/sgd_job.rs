@@ -315,6 +315,13 @@ fn the_4bit_job_streams_packed_codes_and_trains_on_their_values() {
         );
     }
     assert_eq!(bytes("load[0]", "write"), [4096 * 9; 2]);
+    // The job puts engine e on channel e: one training serves both coupled engines, and
+    // each engine's device traffic still names its own channel.
+    for x in ledger["entries"].as_array().expect("entries") {
+        if x["region"] == "device" {
+            assert_eq!(x["channel"], x["engine"], "{x}");
+        }
+    }
     let vh = String::from_utf8(read(&a.join("memory_map.vh"))).unwrap();
     assert!(vh.contains("SGD_RECORD_BYTES = 32'd9;"), "{vh}");
     assert!(vh.contains("SGD_QUANT_BITS = 32'd4;"), "{vh}");

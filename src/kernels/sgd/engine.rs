@@ -434,16 +434,9 @@ pub fn train_engine(
     };
     let mut r = train(data, &one, &[SgdIo { engine: 0, ..*io }])?.remove(0);
     r.engine = io.engine;
-    let mut ledger = Ledger::new();
-    for (k, t) in r.ledger.entries() {
-        ledger.add(
-            Key {
-                engine: io.engine,
-                ..*k
-            },
-            *t,
-        );
-    }
-    r.ledger = ledger;
+    r.ledger = r.ledger.rekeyed(|k| Key {
+        engine: io.engine,
+        ..k
+    });
     Ok(r)
 }

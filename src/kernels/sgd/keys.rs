@@ -3,11 +3,16 @@
 //! numeric mode reads; everything but the data's values is validated here, before any
 //! image is written. The `[kernel.quant]` keys choose k-bit feature codes and their ranges.
 
+use std::sync::Mutex;
+
 use serde::{Deserialize, Serialize};
 
 use super::fixed::{self, FixedSpec, Overflow, Rounding};
 use super::quant::{Outside, Quant};
-use super::{validate, EngineMode, Hyper, Loss, Numeric, Order, SgdData, SgdParams, Step};
+use super::{
+    validate, EngineMode, Hyper, Loss, Numeric, Order, SgdData, SgdEngineResult, SgdIo, SgdParams,
+    Step,
+};
 use crate::error::{Error, Result};
 use crate::kernels::seam::TableSchema;
 use crate::table::{ElemType, QFormat};
@@ -226,12 +231,31 @@ fn clamp() -> String {
     "clamp".into()
 }
 
+/// The last training of a job's coupled (averaging) engines: the placement it counted
+/// with and every engine's result. Averaging couples the engines, so one training gives
+/// all their results; models and losses do not depend on placement, and the ledger
+/// depends on it only through the channel and the bases' offsets within a word. So the
+/// first engine's run trains every engine with its own placement, and each later engine
+/// whose bases sit at the same offsets takes its result with the channel renamed (any
+/// other trains again). All engines of a job read the same replicated table. A cloned
+/// kernel starts with no training.
+#[derive(Debug, Default)]
+pub(super) struct Coupled(pub(super) Mutex<Option<(SgdIo, Vec<SgdEngineResult>)>>);
+
+impl Clone for Coupled {
+    fn clone(&self) -> Coupled {
+        Coupled::default()
+    }
+}
+
 /// SGD bound to its dataset table.
 #[derive(Debug, Clone)]
 pub struct SgdKernel {
     pub(super) table: TableSchema,
     pub(super) params: SgdParams,
     pub(super) config: SgdConfig,
+    /// The last coupled training (see [`Coupled`]).
+    pub(super) coupled: Coupled,
 }
 
 /// Longest snapshot list a job may ask for.
@@ -463,6 +487,7 @@ impl SgdConfig {
             table,
             params,
             config: self.clone(),
+            coupled: Coupled::default(),
         })
     }
 }
