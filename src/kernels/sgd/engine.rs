@@ -14,7 +14,7 @@ use rayon::prelude::*;
 
 use super::fixed::{self, FixedTrainer};
 use super::params::*;
-use super::pass::{order, stream, Counts, Plan, Reads};
+use super::pass::{stream, Counts, Plan, Reads};
 use super::real::{self, FloatTrainer};
 use super::record::{field_bytes, record_shape};
 use super::wide::{self, Wide};
@@ -130,7 +130,7 @@ impl Engine<'_> {
             for k in 0..p.block_epochs {
                 let pass = (u64::from(e) * nb as u64 + b as u64) * u64::from(p.block_epochs)
                     + u64::from(k);
-                let all = order(rows.clone(), p.order, pass);
+                let all = plan.order(rows.clone(), pass);
                 let (lo, hi) = (
                     all.len() * share.0 / share.1,
                     all.len() * (share.0 + 1) / share.1,
@@ -314,6 +314,7 @@ pub fn train_on(
         stride,
         model_bytes: m as u64 * mbytes,
         isa,
+        last_order: Default::default(),
     };
     let mut engines: Vec<Engine> = (0..e_count)
         .map(|e| Engine {

@@ -8,6 +8,8 @@
 //!   every B samples ─► update (η_t), model traffic, snapshot (first M)
 //! ```
 
+use std::sync::{Arc, Mutex};
+
 use super::fixed::FixedTrainer;
 use super::params::*;
 use super::real::{self, FloatTrainer};
@@ -30,11 +32,27 @@ pub(super) struct Plan<'a> {
     pub(super) stride: u64,
     pub(super) model_bytes: u64,
     pub(super) isa: Isa,
+    /// The last pass's sample order, shared by the engines (every engine of a job walks
+    /// the same order, each its share of it, so it is drawn once per pass).
+    pub(super) last_order: Mutex<Option<(u64, Arc<Vec<usize>>)>>,
 }
 
 impl Plan<'_> {
     pub(super) fn blocks(&self) -> usize {
         self.data.rows().div_ceil(self.block_rows)
+    }
+
+    /// [`order`] of pass `pass` over `rows`, drawn by the first engine to ask for it.
+    pub(super) fn order(&self, rows: std::ops::Range<usize>, pass: u64) -> Arc<Vec<usize>> {
+        let mut last = self.last_order.lock().unwrap_or_else(|e| e.into_inner());
+        match &*last {
+            Some((at, o)) if *at == pass => o.clone(),
+            _ => {
+                let o = Arc::new(order(rows, self.p.order, pass));
+                *last = Some((pass, o.clone()));
+                o
+            }
+        }
     }
 }
 
