@@ -407,22 +407,39 @@ impl FixedTrainer {
     #[inline]
     pub fn sample(&mut self, r: usize) -> f64 {
         if self.narrow {
-            self.sample_in::<i64>(r)
+            self.sample_modes::<i64>(r)
         } else {
-            self.sample_in::<i128>(r)
+            self.sample_modes::<i128>(r)
         }
     }
 
-    /// [`FixedTrainer::sample`] with intermediates in `I`.
+    /// [`FixedTrainer::sample`] in `I`, with the rounding and overflow rules as constants
+    /// of each call, so the inner loops are compiled once per pair of rules (no choice per
+    /// value).
     #[inline(always)]
-    fn sample_in<I: Carrier>(&mut self, r: usize) -> f64 {
+    fn sample_modes<I: Carrier>(&mut self, r: usize) -> f64 {
+        use {Overflow::*, Rounding::*};
+        match (self.spec.rounding, self.spec.overflow) {
+            (Truncate, Saturate) => self.sample_in::<I>(r, Truncate, Saturate),
+            (Truncate, Wrap) => self.sample_in::<I>(r, Truncate, Wrap),
+            (NearestEven, Saturate) => self.sample_in::<I>(r, NearestEven, Saturate),
+            (NearestEven, Wrap) => self.sample_in::<I>(r, NearestEven, Wrap),
+            (Stochastic, Saturate) => self.sample_in::<I>(r, Stochastic, Saturate),
+            (Stochastic, Wrap) => self.sample_in::<I>(r, Stochastic, Wrap),
+        }
+    }
+
+    /// [`FixedTrainer::sample`] with intermediates in `I`, rounding `rm` and overflow `ov`
+    /// (the job's, passed as constants by [`FixedTrainer::sample_modes`]).
+    #[inline(always)]
+    fn sample_in<I: Carrier>(&mut self, r: usize, rm: Rounding, ov: Overflow) -> f64 {
         let s = self.spec;
         let (fd, fm, fa) = (
             s.data.frac_bits as i32,
             s.model.frac_bits as i32,
             s.acc.frac_bits as i32,
         );
-        let (ba, ov, rm) = (width(s.acc), s.overflow, s.rounding);
+        let ba = width(s.acc);
         let row = &self.x[r * (self.d + 1)..(r + 1) * (self.d + 1)];
         let (x, y) = (&row[..self.d], row[self.d]);
         let mut acc: i64 = 0;
