@@ -510,6 +510,55 @@ fn calibrate_and_bench_write_their_results() {
 }
 
 #[test]
+fn bench_sgd_engines_train_the_library_model_on_their_own_copies() {
+    use weir::bench::sgd::{bench_data, bench_io, bench_params};
+    use weir::kernels::sgd::{train_validated, Numeric};
+    let t = TempDir::new("bench-sgd");
+    let prefix = t.join("sgd");
+    let o = weir(&[
+        "bench",
+        "sgd",
+        "--dims",
+        "8",
+        "--batch",
+        "4",
+        "--rows",
+        "512",
+        "--runs",
+        "1",
+        "--threads",
+        "1,2",
+        "--out",
+        prefix.to_str().unwrap(),
+    ]);
+    assert_eq!(o.code, 0, "{}", o.stderr);
+    let v: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(t.join("sgd.json")).unwrap()).unwrap();
+    let points = v["points"].as_array().unwrap();
+    assert_eq!(points.len(), 2, "{v}");
+    let params = bench_params(
+        4,
+        Numeric::F32 {
+            lanes: 16,
+            ftz: false,
+        },
+        1,
+    );
+    let want = train_validated(&bench_data(512, 8), &params, &bench_io(1)).unwrap()[0]
+        .model
+        .to_f64();
+    for p in points {
+        let got: Vec<f64> = p["model"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|x| x.as_f64().unwrap())
+            .collect();
+        assert_eq!(got, want, "{} threads", p["threads"]);
+    }
+}
+
+#[test]
 fn negative_numbers_are_values_of_gen_flags() {
     let t = TempDir::new("gen-negative");
     let out = t.join("v.npy");

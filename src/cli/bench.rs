@@ -390,7 +390,7 @@ fn bench_sgd(a: BenchSgdArgs) -> Result<Outcome> {
     if let Some(e) = save_err {
         return Err(e);
     }
-    say!("one epoch of squared-loss SGD per engine (one per thread, all over one shared dataset), {} runs each after a read pass over the same bytes", a.runs);
+    say!("one epoch of squared-loss SGD per engine (one per thread, each over its own copy of the dataset), {} runs each after a read pass over the same copies", a.runs);
     let mut t = TextTable::new(&[
         "d",
         "B",
