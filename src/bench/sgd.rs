@@ -134,8 +134,13 @@ pub fn bench_io(n: usize) -> Vec<SgdIo> {
         .collect()
 }
 
-/// A copy of `data` whose features sit on huge pages, as the generator places them (the
-/// read pass and the engines then stream alike from every copy).
+/// `n` copies of `data`, one per engine, their features on huge pages as the generator
+/// places them (the read pass and the engines then stream alike from every copy).
+pub fn replicas(data: &SgdData, n: usize) -> Vec<SgdData> {
+    (0..n).map(|_| replica(data)).collect()
+}
+
+/// One copy of `data` for [`replicas`].
 fn replica(data: &SgdData) -> SgdData {
     let x = data.features.as_slice().expect("row-major");
     let mut v = crate::kernels::hints::huge_vec(x.len());
@@ -145,6 +150,21 @@ fn replica(data: &SgdData) -> SgdData {
             .expect("the same shape"),
         labels: data.labels.clone(),
     }
+}
+
+/// One epoch of one engine per copy (placed by [`bench_io`]), all at once on the current
+/// thread pool: the same work as a job's independent engines with one step size.
+pub fn train_replicas(
+    copies: &[SgdData],
+    batch: usize,
+    numeric: &Numeric,
+) -> Result<Vec<SgdEngineResult>, SgdError> {
+    let params = bench_params(batch, numeric.clone(), 1);
+    copies
+        .par_iter()
+        .zip(bench_io(copies.len()))
+        .map(|(c, io)| train_validated(c, &params, &[io]).map(|mut r| r.remove(0)))
+        .collect()
 }
 
 /// One thread per copy summing its every feature and label once (the bytes one epoch of
@@ -191,13 +211,9 @@ pub fn bench_sgd(
                 .num_threads(t)
                 .build()
                 .expect("thread pool");
-            let copies: Vec<SgdData> = (0..t).map(|_| replica(&data)).collect();
+            let copies = replicas(&data, t);
             for numeric in &p.modes {
                 for &b in &p.batches {
-                    // One engine per copy, all engines at once: the same work as a job's
-                    // independent engines with one step size.
-                    let params = bench_params(b.min(rows as usize), numeric.clone(), 1);
-                    let io = bench_io(t);
                     let (mut kt, mut rt, mut model) = (Vec::new(), Vec::new(), Vec::new());
                     pool.install(|| -> Result<(), SgdError> {
                         for run in 0..=p.runs {
@@ -205,16 +221,10 @@ pub fn bench_sgd(
                             std::hint::black_box(read_pass(&copies));
                             let r = s.elapsed().as_secs_f64();
                             let s = Instant::now();
-                            let rs = copies
-                                .par_iter()
-                                .zip(&io)
-                                .map(|(c, io)| {
-                                    train_validated(c, &params, std::slice::from_ref(io))
-                                })
-                                .collect::<Result<Vec<_>, _>>();
+                            let rs = train_replicas(&copies, b.min(rows as usize), numeric);
                             let rs = std::hint::black_box(rs?);
                             let k = s.elapsed().as_secs_f64();
-                            model = rs[0][0].model.to_f64();
+                            model = rs[0].model.to_f64();
                             if run > 0 {
                                 rt.push(r);
                                 kt.push(k);
