@@ -542,7 +542,6 @@ fn bench_sgd_engines_train_the_library_model_on_their_own_copies() {
             lanes: 16,
             ftz: false,
         },
-        1,
     );
     let want = train_validated(&bench_data(512, 8), &params, &bench_io(1)).unwrap()[0]
         .model

@@ -92,8 +92,9 @@ pub fn bench_data(rows: u64, dims: usize) -> SgdData {
     .data
 }
 
-/// The bench's parameters: squared loss, one epoch, input order, `threads` engines.
-pub fn bench_params(batch: usize, numeric: Numeric, threads: usize) -> SgdParams {
+/// The bench's parameters: squared loss, one epoch, input order, one engine (each engine
+/// of a bench trains on its own copy, see [`train_replicas`]).
+pub fn bench_params(batch: usize, numeric: Numeric) -> SgdParams {
     let h = Hyper {
         step: Step {
             eta: 1e-3,
@@ -110,9 +111,7 @@ pub fn bench_params(batch: usize, numeric: Numeric, threads: usize) -> SgdParams
         order: Order::Input,
         tol: None,
         numeric,
-        engines: EngineMode::Independent {
-            sweep: vec![h; threads],
-        },
+        engines: EngineMode::Independent { sweep: vec![h] },
         capacity: None,
         block_epochs: 1,
         snapshots: 0,
@@ -159,7 +158,7 @@ pub fn train_replicas(
     batch: usize,
     numeric: &Numeric,
 ) -> Result<Vec<SgdEngineResult>, SgdError> {
-    let params = bench_params(batch, numeric.clone(), 1);
+    let params = bench_params(batch, numeric.clone());
     copies
         .par_iter()
         .zip(bench_io(copies.len()))
@@ -200,11 +199,7 @@ pub fn bench_sgd(
         let rows = p.rows.min(p.max_bytes / ((d as u64 + 1) * 4)).max(1);
         let data = bench_data(rows, d);
         data_for(d, &data);
-        validate(
-            &data,
-            &bench_params(1, Numeric::F64 { lanes: 1 }, 1),
-            Some(d),
-        )?;
+        validate(&data, &bench_params(1, Numeric::F64 { lanes: 1 }), Some(d))?;
         let bytes = rows * (d as u64 + 1) * 4;
         for &t in &p.threads {
             let pool = rayon::ThreadPoolBuilder::new()

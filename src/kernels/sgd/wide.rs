@@ -48,6 +48,44 @@ fn add_scaled_rows(
     }
 }
 
+/// Panics unless every row of `rows` lies within `x` (rows of `d` values): the explicit
+/// forms read rows through raw pointers.
+#[cfg(target_arch = "x86_64")]
+#[inline(always)]
+fn check_rows(x: &[f32], d: usize, rows: &[usize]) {
+    assert!(
+        rows.iter().all(|&r| (r + 1) * d <= x.len()),
+        "rows within x"
+    );
+}
+
+/// Adds the terms of columns `c .. c + 4·W` (W lanes a register) into `gp`, the four
+/// registers held across all the rows: `load`, `store`, `set1`, `add` and `mul` are one
+/// instruction set's. Expands inside the caller's `unsafe` block, which vouches for the
+/// pointers.
+#[cfg(target_arch = "x86_64")]
+macro_rules! four_register_block {
+    ($gp:expr, $xp:expr, $d:expr, $c:expr, $rows:expr, $s:expr, $w:expr,
+     $load:ident, $store:ident, $set1:ident, $add:ident, $mul:ident) => {{
+        // No closure here: a closure would not share the caller's instruction set.
+        let mut a = [
+            $load($gp.add($c)),
+            $load($gp.add($c + $w)),
+            $load($gp.add($c + 2 * $w)),
+            $load($gp.add($c + 3 * $w)),
+        ];
+        for (&r, &si) in $rows.iter().zip($s) {
+            let (b, p) = ($set1(si), $xp.add(r * $d + $c));
+            for (k, ak) in a.iter_mut().enumerate() {
+                *ak = $add(*ak, $mul(b, $load(p.add($w * k))));
+            }
+        }
+        for (k, ak) in a.iter().enumerate() {
+            $store($gp.add($c + $w * k), *ak);
+        }
+    }};
+}
+
 /// The scalar form: [`tree::dot`] itself, vectorised by the compiler where it can.
 #[derive(Clone, Copy)]
 pub(super) struct Portable;
@@ -131,10 +169,7 @@ impl Wide for Avx512 {
     fn add_scaled(self, g: &mut [f32], x: &[f32], d: usize, rows: &[usize], s: &[f32]) {
         use std::arch::x86_64::*;
         let g = &mut g[..d];
-        assert!(
-            rows.iter().all(|&r| (r + 1) * d <= x.len()),
-            "rows within x"
-        );
+        check_rows(x, d, rows);
         // SAFETY: the token proves AVX-512 F (module doc); with every row checked above,
         // each load reads within `x[r·d..(r+1)·d]` and each load and store of `g` within
         // `g[..d]` (full blocks below `d`, the last one masked to `d`).
@@ -142,21 +177,20 @@ impl Wide for Avx512 {
             let (xp, gp) = (x.as_ptr(), g.as_mut_ptr());
             let mut c = 0;
             while c + 64 <= d {
-                let mut a = [
-                    _mm512_loadu_ps(gp.add(c)),
-                    _mm512_loadu_ps(gp.add(c + 16)),
-                    _mm512_loadu_ps(gp.add(c + 32)),
-                    _mm512_loadu_ps(gp.add(c + 48)),
-                ];
-                for (&r, &si) in rows.iter().zip(s) {
-                    let (b, p) = (_mm512_set1_ps(si), xp.add(r * d + c));
-                    for (k, ak) in a.iter_mut().enumerate() {
-                        *ak = _mm512_add_ps(*ak, _mm512_mul_ps(b, _mm512_loadu_ps(p.add(16 * k))));
-                    }
-                }
-                for (k, ak) in a.iter().enumerate() {
-                    _mm512_storeu_ps(gp.add(c + 16 * k), *ak);
-                }
+                four_register_block!(
+                    gp,
+                    xp,
+                    d,
+                    c,
+                    rows,
+                    s,
+                    16,
+                    _mm512_loadu_ps,
+                    _mm512_storeu_ps,
+                    _mm512_set1_ps,
+                    _mm512_add_ps,
+                    _mm512_mul_ps
+                );
                 c += 64;
             }
             while c < d {
@@ -245,10 +279,7 @@ impl Wide for Avx2 {
     fn add_scaled(self, g: &mut [f32], x: &[f32], d: usize, rows: &[usize], s: &[f32]) {
         use std::arch::x86_64::*;
         let g = &mut g[..d];
-        assert!(
-            rows.iter().all(|&r| (r + 1) * d <= x.len()),
-            "rows within x"
-        );
+        check_rows(x, d, rows);
         let full = d / 32 * 32;
         // SAFETY: the token proves AVX2 (module doc); with every row checked above, each
         // load reads within `x[r·d..r·d+full]` and each load and store of `g` within
@@ -256,21 +287,20 @@ impl Wide for Avx2 {
         unsafe {
             let (xp, gp) = (x.as_ptr(), g.as_mut_ptr());
             for c in (0..full).step_by(32) {
-                let mut a = [
-                    _mm256_loadu_ps(gp.add(c)),
-                    _mm256_loadu_ps(gp.add(c + 8)),
-                    _mm256_loadu_ps(gp.add(c + 16)),
-                    _mm256_loadu_ps(gp.add(c + 24)),
-                ];
-                for (&r, &si) in rows.iter().zip(s) {
-                    let (b, p) = (_mm256_set1_ps(si), xp.add(r * d + c));
-                    for (k, ak) in a.iter_mut().enumerate() {
-                        *ak = _mm256_add_ps(*ak, _mm256_mul_ps(b, _mm256_loadu_ps(p.add(8 * k))));
-                    }
-                }
-                for (k, ak) in a.iter().enumerate() {
-                    _mm256_storeu_ps(gp.add(c + 8 * k), *ak);
-                }
+                four_register_block!(
+                    gp,
+                    xp,
+                    d,
+                    c,
+                    rows,
+                    s,
+                    8,
+                    _mm256_loadu_ps,
+                    _mm256_storeu_ps,
+                    _mm256_set1_ps,
+                    _mm256_add_ps,
+                    _mm256_mul_ps
+                );
             }
         }
         add_scaled_rows(g, x, d, full..d, rows, s)
