@@ -14,7 +14,7 @@ use rayon::prelude::*;
 
 use super::fixed::{self, FixedTrainer};
 use super::params::*;
-use super::pass::{stream, Counts, Plan, Reads};
+use super::pass::{stream, Counts, Plan, Reads, Share};
 use super::real::{self, FloatTrainer};
 use super::record::{field_bytes, record_shape};
 use super::wide::{self, Wide};
@@ -130,12 +130,14 @@ impl Engine<'_> {
             for k in 0..p.block_epochs {
                 let pass = (u64::from(e) * nb as u64 + b as u64) * u64::from(p.block_epochs)
                     + u64::from(k);
-                let all = plan.order(rows.clone(), pass);
-                let (lo, hi) = (
-                    all.len() * share.0 / share.1,
-                    all.len() * (share.0 + 1) / share.1,
-                );
-                self.pass(plan, &all[lo..hi], start, &mut c);
+                let drawn = plan.order(rows.clone(), pass);
+                let n = rows.len();
+                let (lo, hi) = (n * share.0 / share.1, n * (share.0 + 1) / share.1);
+                let part = match &drawn {
+                    Some(o) => Share::Listed(&o[lo..hi]),
+                    None => Share::Run(start + lo, start + hi),
+                };
+                self.pass(plan, part, start, &mut c);
             }
         }
         let (reads, model_r, model_w, samples) = (c.reads, c.model_r, c.model_w, c.samples);
@@ -162,7 +164,7 @@ impl Engine<'_> {
     /// instruction set the plan's token allows. Every path runs the same IEEE operations
     /// in the same order (Rust never fuses or reorders float arithmetic), so results are
     /// identical; wider registers only hold more adder-tree lanes at once.
-    fn pass(&mut self, plan: &Plan, share: &[usize], start: usize, c: &mut Counts) {
+    fn pass(&mut self, plan: &Plan, share: Share, start: usize, c: &mut Counts) {
         match plan.isa.level() {
             #[cfg(target_arch = "x86_64")]
             Level::Avx512 => {
@@ -181,14 +183,14 @@ impl Engine<'_> {
 
     #[cfg(target_arch = "x86_64")]
     #[target_feature(enable = "avx512f,avx512bw,avx512vl,bmi1,bmi2,popcnt")]
-    unsafe fn pass_avx512(&mut self, plan: &Plan, share: &[usize], start: usize, c: &mut Counts) {
+    unsafe fn pass_avx512(&mut self, plan: &Plan, share: Share, start: usize, c: &mut Counts) {
         let v = wide::Avx512::new(plan.isa).expect("an AVX-512 token");
         self.pass_body(v, plan, share, start, c)
     }
 
     #[cfg(target_arch = "x86_64")]
     #[target_feature(enable = "avx2,bmi1,bmi2,popcnt")]
-    unsafe fn pass_avx2(&mut self, plan: &Plan, share: &[usize], start: usize, c: &mut Counts) {
+    unsafe fn pass_avx2(&mut self, plan: &Plan, share: Share, start: usize, c: &mut Counts) {
         let v = wide::Avx2::new(plan.isa).expect("an AVX2 token");
         self.pass_body(v, plan, share, start, c)
     }
@@ -198,7 +200,7 @@ impl Engine<'_> {
         &mut self,
         v: V,
         plan: &Plan,
-        share: &[usize],
+        share: Share,
         start: usize,
         c: &mut Counts,
     ) {

@@ -351,7 +351,7 @@ impl FixedSpec {
 /// The fixed-point trainer of one engine.
 pub struct FixedTrainer {
     spec: FixedSpec,
-    loss: Loss,
+    pub(super) loss: Loss,
     d: usize,
     bias: bool,
     /// n × (d + 1) values in Q_d: features then label.
@@ -486,14 +486,22 @@ impl FixedTrainer {
         z as f64 / pow2(fa)
     }
 
-    /// Applies and clears the gradient of a minibatch of `batch` samples.
-    pub fn update(&mut self, eta: f64, l2: f64, batch: usize) {
+    /// The rates of an update with step `eta` and L2 strength `l2` after a minibatch of
+    /// `batch` samples: η/B′ and η·λ in Q(·).STEP_FRAC.
+    pub fn rates(eta: f64, l2: f64, batch: usize) -> (i128, i128) {
+        let mut none = 0;
+        (
+            i128::from(from_real(eta / batch as f64, STEP_FRAC, 64, &mut none)),
+            i128::from(from_real(eta * l2, STEP_FRAC, 64, &mut none)),
+        )
+    }
+
+    /// Applies and clears the gradient of a minibatch with the [`FixedTrainer::rates`]
+    /// `(sc, rc)`.
+    pub fn update(&mut self, (sc, rc): (i128, i128)) {
         let s = self.spec;
         let (fm, fa) = (s.model.frac_bits, s.acc.frac_bits);
         let top = fm.max(fa) + STEP_FRAC;
-        let mut none = 0;
-        let sc = i128::from(from_real(eta / batch as f64, STEP_FRAC, 64, &mut none));
-        let rc = i128::from(from_real(eta * l2, STEP_FRAC, 64, &mut none));
         let bm = width(s.model);
         for j in 0..self.w.len() {
             let r = if j < self.d { rc } else { 0 };
@@ -607,8 +615,8 @@ mod tests {
             for r in 0..24 {
                 prop_assert_eq!(narrow.sample(r).to_bits(), wide.sample(r).to_bits(), "sample {}", r);
                 if r % 4 == 3 {
-                    narrow.update(0.5, 0.01, 4);
-                    wide.update(0.5, 0.01, 4);
+                    narrow.update(FixedTrainer::rates(0.5, 0.01, 4));
+                    wide.update(FixedTrainer::rates(0.5, 0.01, 4));
                 }
             }
             prop_assert_eq!(&narrow.w, &wide.w);

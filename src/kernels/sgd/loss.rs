@@ -42,30 +42,46 @@ impl Loss {
         }
     }
 
-    /// `acc + ℓ(z₀, y₀) + ℓ(z₁, y₁) + …`, one `f64` sum per term in order. The loss is
-    /// chosen once for all the terms, and the sum is a call of its own, so the running sum
-    /// stays in a register (inlined into a large pass it was kept in memory, a store and a
-    /// reload on every term's dependency chain).
-    #[inline(never)]
-    pub fn add_values(self, acc: f64, z: &[f64], y: impl Iterator<Item = f64>) -> f64 {
-        fn fold(
-            acc: f64,
-            z: &[f64],
-            y: impl Iterator<Item = f64>,
-            f: impl Fn(f64, f64) -> f64,
-        ) -> f64 {
-            z.iter().zip(y).fold(acc, |a, (&z, y)| a + f(z, y))
+    /// For each prediction `zs[i]` of row `rows[i]`: adds ℓ(z, y) in `f64` to `loss`,
+    /// then replaces z by [`Loss::dz`] against the row's label. Returns `acc` plus the
+    /// derivatives, summed in order in `T`, and the new `loss`. The loss is chosen once for
+    /// all the rows, and both sums stay in registers.
+    #[inline(always)]
+    pub fn dz_rows<T: Real>(
+        self,
+        zs: &mut [T],
+        rows: &[usize],
+        labels: &[f32],
+        acc: T,
+        loss: f64,
+    ) -> (T, f64) {
+        #[inline(always)]
+        fn each<T: Real>(
+            zs: &mut [T],
+            rows: &[usize],
+            labels: &[f32],
+            (mut acc, mut loss): (T, f64),
+            loss_fn: Loss,
+        ) -> (T, f64) {
+            for (zi, &r) in zs.iter_mut().zip(rows) {
+                let y = labels[r];
+                loss += loss_fn.value(zi.to_f64(), f64::from(y));
+                *zi = loss_fn.dz(*zi, T::from_f32(y));
+                acc = acc.add(*zi);
+            }
+            (acc, loss)
         }
+        // One loop per loss, each with its arithmetic inlined.
         match self {
-            Loss::Squared => fold(acc, z, y, |z, y| Loss::Squared.value(z, y)),
-            Loss::Logistic => fold(acc, z, y, |z, y| Loss::Logistic.value(z, y)),
-            Loss::Hinge => fold(acc, z, y, |z, y| Loss::Hinge.value(z, y)),
+            Loss::Squared => each(zs, rows, labels, (acc, loss), Loss::Squared),
+            Loss::Logistic => each(zs, rows, labels, (acc, loss), Loss::Logistic),
+            Loss::Hinge => each(zs, rows, labels, (acc, loss), Loss::Hinge),
         }
     }
 
     /// ∂ℓ/∂z in the arithmetic of `T`: σ(z) = 1 / (1 + e^−z) with `exp` from libm in `f64`,
     /// rounded once to `T`; the subtraction is done in `T`.
-    #[inline]
+    #[inline(always)]
     pub fn dz<T: Real>(self, z: T, y: T) -> T {
         match self {
             Loss::Squared => z.sub(y),

@@ -42,15 +42,57 @@ impl Plan<'_> {
         self.data.rows().div_ceil(self.block_rows)
     }
 
-    /// [`order`] of pass `pass` over `rows`, drawn by the first engine to ask for it.
-    pub(super) fn order(&self, rows: std::ops::Range<usize>, pass: u64) -> Arc<Vec<usize>> {
+    /// [`order`] of pass `pass` over `rows`, drawn by the first engine to ask for it;
+    /// `None` in input order, which is `rows` itself.
+    pub(super) fn order(&self, rows: std::ops::Range<usize>, pass: u64) -> Option<Arc<Vec<usize>>> {
+        if matches!(self.p.order, Order::Input) {
+            return None;
+        }
         let mut last = self.last_order.lock().unwrap_or_else(|e| e.into_inner());
         match &*last {
-            Some((at, o)) if *at == pass => o.clone(),
+            Some((at, o)) if *at == pass => Some(o.clone()),
             _ => {
                 let o = Arc::new(order(rows, self.p.order, pass));
                 *last = Some((pass, o.clone()));
-                o
+                Some(o)
+            }
+        }
+    }
+}
+
+/// The samples one engine's pass takes, in order.
+#[derive(Clone, Copy)]
+pub(super) enum Share<'a> {
+    /// Consecutive rows (input order): no list is made, which would cost a write and a
+    /// read of 8 bytes a row beside the data itself.
+    Run(usize, usize),
+    /// Rows in a drawn order.
+    Listed(&'a [usize]),
+}
+
+impl Share<'_> {
+    fn len(self) -> usize {
+        match self {
+            Share::Run(a, b) => b - a,
+            Share::Listed(s) => s.len(),
+        }
+    }
+
+    /// The rows at positions `now` and at positions `next`, listed in `buf` for a run.
+    fn window<'s>(
+        &'s self,
+        now: std::ops::Range<usize>,
+        next: std::ops::Range<usize>,
+        buf: &'s mut Vec<usize>,
+    ) -> (&'s [usize], &'s [usize]) {
+        match self {
+            Share::Listed(s) => (&s[now], &s[next]),
+            Share::Run(a, _) => {
+                let k = now.len();
+                buf.clear();
+                buf.extend(now.start + a..now.end + a);
+                buf.extend(next.start + a..next.end + a);
+                buf.split_at(k)
             }
         }
     }
@@ -128,21 +170,45 @@ impl Reads {
 /// What a trainer does per sample and per minibatch (both trainers implement it, so a
 /// pass is compiled once per trainer with no dispatch per sample).
 pub(super) trait Trains {
-    /// Adds the gradients of the samples `mb` in order and writes their predictions to
-    /// `z`, prefetching row `ahead[i]` while sample i is read.
-    fn batch<V: Wide>(&mut self, v: V, mb: &[usize], ahead: &[usize], z: &mut [f64]);
-    fn update(&mut self, eta: f64, l2: f64, batch: usize);
+    /// Adds the gradients of the samples `mb` in order and returns `loss` plus their
+    /// losses (labels `labels`), summed in order in `f64`, prefetching row `ahead[i]`
+    /// while sample i is read.
+    fn batch<V: Wide>(
+        &mut self,
+        v: V,
+        mb: &[usize],
+        ahead: &[usize],
+        labels: &[f32],
+        loss: f64,
+    ) -> f64;
+    /// An update's rates from step `eta`, L2 strength `l2` and a minibatch of `batch`.
+    type Rates: Copy;
+    fn rates(&self, eta: f64, l2: f64, batch: usize) -> Self::Rates;
+    /// Applies and clears the minibatch's gradient.
+    fn update(&mut self, rates: Self::Rates);
     fn model(&self) -> Model;
 }
 
 impl<T: real::Real, const FTZ: bool> Trains for FloatTrainer<'_, T, FTZ> {
     #[inline(always)]
-    fn batch<V: Wide>(&mut self, v: V, mb: &[usize], ahead: &[usize], z: &mut [f64]) {
-        FloatTrainer::batch(self, v, mb, ahead, z)
+    fn batch<V: Wide>(
+        &mut self,
+        v: V,
+        mb: &[usize],
+        ahead: &[usize],
+        labels: &[f32],
+        loss: f64,
+    ) -> f64 {
+        FloatTrainer::batch(self, v, mb, ahead, labels, loss)
+    }
+    type Rates = (T, T);
+    #[inline(always)]
+    fn rates(&self, eta: f64, l2: f64, batch: usize) -> (T, T) {
+        FloatTrainer::rates(self, eta, l2, batch)
     }
     #[inline(always)]
-    fn update(&mut self, eta: f64, l2: f64, batch: usize) {
-        FloatTrainer::update(self, eta, l2, batch)
+    fn update(&mut self, rates: (T, T)) {
+        FloatTrainer::update(self, rates)
     }
     fn model(&self) -> Model {
         FloatTrainer::model(self)
@@ -152,17 +218,31 @@ impl<T: real::Real, const FTZ: bool> Trains for FloatTrainer<'_, T, FTZ> {
 impl Trains for Box<FixedTrainer> {
     /// One sample after another: stochastic rounding draws its bits in this order.
     #[inline(always)]
-    fn batch<V: Wide>(&mut self, _: V, mb: &[usize], ahead: &[usize], z: &mut [f64]) {
-        for (i, (&r, zi)) in mb.iter().zip(z.iter_mut()).enumerate() {
+    fn batch<V: Wide>(
+        &mut self,
+        _: V,
+        mb: &[usize],
+        ahead: &[usize],
+        labels: &[f32],
+        loss: f64,
+    ) -> f64 {
+        let mut loss = loss;
+        for (i, &r) in mb.iter().enumerate() {
             if let Some(&next) = ahead.get(i) {
                 self.prefetch(next);
             }
-            *zi = self.sample(r);
+            loss += self.loss.value(self.sample(r), f64::from(labels[r]));
         }
+        loss
+    }
+    type Rates = (i128, i128);
+    #[inline(always)]
+    fn rates(&self, eta: f64, l2: f64, batch: usize) -> (i128, i128) {
+        FixedTrainer::rates(eta, l2, batch)
     }
     #[inline(always)]
-    fn update(&mut self, eta: f64, l2: f64, batch: usize) {
-        FixedTrainer::update(self, eta, l2, batch)
+    fn update(&mut self, rates: (i128, i128)) {
+        FixedTrainer::update(self, rates)
     }
     fn model(&self) -> Model {
         FixedTrainer::model(self)
@@ -187,26 +267,33 @@ pub(super) fn stream<S: Trains, V: Wide>(
     t: &mut S,
     v: V,
     plan: &Plan,
-    share: &[usize],
+    share: Share,
     start: usize,
     c: &mut Counts,
     (hyper, updates, snapshots, loss_sum): (&Hyper, &mut u64, &mut Vec<Model>, &mut f64),
 ) {
     let p = plan.p;
     let ahead = (PREFETCH_BYTES / plan.stride).max(1) as usize;
-    let mut z = vec![0.0; p.batch.min(share.len())];
-    // The running loss in a local, which the compiler may keep in a register.
+    let labels = plan.data.labels.as_slice().expect("contiguous labels");
+    // The running loss in a local, passed through the trainer by value, so it stays in a
+    // register.
     let mut loss = *loss_sum;
-    for (k, mb) in share.chunks(p.batch).enumerate() {
-        let from = (k * p.batch + ahead).min(share.len());
-        let to = (from + mb.len()).min(share.len());
-        t.batch(v, mb, &share[from..to], &mut z[..mb.len()]);
+    let n = share.len();
+    let mut buf = Vec::new();
+    for k in 0..n.div_ceil(p.batch) {
+        let now = k * p.batch..((k + 1) * p.batch).min(n);
+        let from = (now.start + ahead).min(n);
+        let next = from..(from + now.len()).min(n);
+        let (mb, next) = share.window(now, next, &mut buf);
+        // The update's rates first: issued here, their divisions are done long before the
+        // update waits on them (issued beside the update, they lengthen every minibatch's
+        // chain of dependent steps).
+        let rates = t.rates(hyper.step.at(*updates), hyper.l2, mb.len());
+        loss = t.batch(v, mb, next, labels, loss);
         for run in mb.chunk_by(|a, b| b.checked_sub(*a) == Some(1)) {
             c.reads.read((run[0] - start) as u64, run.len() as u64);
         }
-        let labels = mb.iter().map(|&r| f64::from(plan.data.labels[r]));
-        loss = p.loss.add_values(loss, &z[..mb.len()], labels);
-        t.update(hyper.step.at(*updates), hyper.l2, mb.len());
+        t.update(rates);
         // Each sample reads the model, and the update reads and writes it.
         c.model_r += c.model_t.times(mb.len() as u64 + 1);
         c.model_w += c.model_t;

@@ -147,47 +147,62 @@ impl<'a, T: Real, const FTZ: bool> FloatTrainer<'a, T, FTZ> {
         }
     }
 
-    /// Adds the gradients of the samples `mb`, in order, and writes each one's prediction
-    /// z to `z`; while sample i is read, the row of `ahead[i]` is prefetched. The samples
-    /// go in runs that fit the first-level cache: a run's predictions first, all of them
-    /// (the model is fixed within a minibatch, so their dependency chains — products, lane
-    /// sums, tree — are independent and overlap in the core), then its gradient sums in
-    /// sample order, re-reading rows the predictions just brought in.
+    /// Adds the gradients of the samples `mb`, in order, and returns `loss` plus their
+    /// losses ℓ(z, y) in `f64`, summed in order. The samples go in runs that fit the
+    /// first-level cache: a run's predictions first, all of them (the model is fixed within
+    /// a minibatch, so their dependency chains — products, lane sums, tree — are
+    /// independent and overlap in the core), then its gradient sums in sample order,
+    /// re-reading rows the predictions just brought in.
     #[inline(always)]
-    pub(super) fn batch<V: Wide>(&mut self, v: V, mb: &[usize], ahead: &[usize], z: &mut [f64]) {
+    pub(super) fn batch<V: Wide>(
+        &mut self,
+        v: V,
+        mb: &[usize],
+        ahead: &[usize],
+        labels: &[f32],
+        mut loss: f64,
+    ) -> f64 {
         let run = (RUN_BYTES / (4 * self.data.dims()).max(1)).max(1);
-        for (k, (mb, z)) in mb.chunks(run).zip(z.chunks_mut(run)).enumerate() {
+        for (k, mb) in mb.chunks(run).enumerate() {
             let ahead = ahead.get(k * run..).unwrap_or(&[]);
-            self.run(v, mb, ahead, z);
+            loss = self.run(v, mb, ahead, labels, loss);
         }
+        loss
     }
 
     /// [`FloatTrainer::batch`] for one run.
     #[inline(always)]
-    fn run<V: Wide>(&mut self, v: V, mb: &[usize], ahead: &[usize], z: &mut [f64]) {
+    fn run<V: Wide>(
+        &mut self,
+        v: V,
+        mb: &[usize],
+        ahead: &[usize],
+        labels: &[f32],
+        mut loss: f64,
+    ) -> f64 {
         let d = self.data.dims();
         let all = self.data.features.as_slice().expect("row-major features");
         let mut zs = std::mem::take(&mut self.zs);
         zs.resize(mb.len(), T::ZERO);
-        for (i, (&r, zi)) in mb.iter().zip(zs.iter_mut()).enumerate() {
-            if let Some(&next) = ahead.get(i) {
-                crate::kernels::hints::prefetch_all(&all[next * d..(next + 1) * d]);
+        match (T::as_f32s(&self.w), T::as_f32s_mut(&mut zs)) {
+            (Some(model), Some(zf)) if !FTZ && self.lanes == 16 => {
+                v.dots16(all, d, model, (mb, ahead), zf)
             }
-            let x = &all[r * d..(r + 1) * d];
-            let w = &self.w[..d];
-            let mut dot = match T::as_f32s(w) {
-                Some(w) if !FTZ && self.lanes == 16 => T::from_f32(v.dot16(x, w)),
-                _ => tree::dot::<T, FTZ>(x, w, self.lanes),
-            };
-            if self.bias {
-                dot = Self::fl(dot.add(self.w[d]));
+            _ => {
+                let (w, wb) = self.w.split_at(d);
+                for (i, (&r, zi)) in mb.iter().zip(zs.iter_mut()).enumerate() {
+                    if let Some(&next) = ahead.get(i) {
+                        crate::kernels::hints::prefetch_all(&all[next * d..(next + 1) * d]);
+                    }
+                    let dot = tree::dot::<T, FTZ>(&all[r * d..(r + 1) * d], w, self.lanes);
+                    *zi = wb.first().map_or(dot, |&b| Self::fl(dot.add(b)));
+                }
             }
-            *zi = dot;
         }
         if FTZ || T::as_f32s(&zs).is_none() {
-            for ((&r, &zi), out) in mb.iter().zip(&zs).zip(z.iter_mut()) {
+            for (&r, &zi) in mb.iter().zip(&zs) {
                 let x = &all[r * d..(r + 1) * d];
-                let y = Self::fl(T::from_f32(self.data.labels[r]));
+                let y = Self::fl(T::from_f32(labels[r]));
                 let gz = Self::fl(self.loss.dz(zi, y));
                 for (gj, &xj) in self.g[..d].iter_mut().zip(x) {
                     *gj = Self::fl(gj.add(Self::fl(gz.mul(Self::fl(T::from_f32(xj))))));
@@ -195,30 +210,40 @@ impl<'a, T: Real, const FTZ: bool> FloatTrainer<'a, T, FTZ> {
                 if self.bias {
                     self.g[d] = Self::fl(self.g[d].add(gz));
                 }
-                *out = zi.to_f64();
+                loss += self.loss.value(zi.to_f64(), f64::from(labels[r]));
             }
         } else {
             // f32 without flush: the derivatives first, then the gradient sums column block
             // by column block (the same operations in the same order per coordinate).
-            for ((&r, zi), out) in mb.iter().zip(zs.iter_mut()).zip(z.iter_mut()) {
-                *out = zi.to_f64();
-                *zi = self.loss.dz(*zi, T::from_f32(self.data.labels[r]));
-                if self.bias {
-                    self.g[d] = self.g[d].add(*zi);
-                }
+            let (g, gb) = self.g.split_at_mut(d);
+            let acc = gb.first().copied().unwrap_or(T::ZERO);
+            let (acc, sum) = self.loss.dz_rows(&mut zs, mb, labels, acc, loss);
+            loss = sum;
+            if let Some(gb) = gb.first_mut() {
+                *gb = acc;
             }
-            let (g, s) = (T::as_f32s_mut(&mut self.g[..d]), T::as_f32s(&zs));
+            let (g, s) = (T::as_f32s_mut(g), T::as_f32s(&zs));
             v.add_scaled(g.expect("f32"), all, d, mb, s.expect("f32"));
         }
         self.zs = zs;
+        loss
     }
 
-    /// Applies and clears the gradient of a minibatch of `batch` samples.
+    /// The rates `(s, r)` of an update with step `eta` and L2 strength `l2` after a
+    /// minibatch of `batch` samples.
     #[inline(always)]
-    pub fn update(&mut self, eta: f64, l2: f64, batch: usize) {
+    pub fn rates(&self, eta: f64, l2: f64, batch: usize) -> (T, T) {
+        (
+            Self::fl(T::from_f64(eta / batch as f64)),
+            Self::fl(T::from_f64(eta * l2)),
+        )
+    }
+
+    /// Applies and clears the gradient of a minibatch with the [`FloatTrainer::rates`]
+    /// `(s, r)`.
+    #[inline(always)]
+    pub fn update(&mut self, (s, r): (T, T)) {
         let d = self.data.dims();
-        let s = Self::fl(T::from_f64(eta / batch as f64));
-        let r = Self::fl(T::from_f64(eta * l2));
         for (wj, gj) in self.w[..d].iter_mut().zip(self.g[..d].iter_mut()) {
             *wj = Self::fl(wj.sub(Self::fl(Self::fl(s.mul(*gj)).add(Self::fl(r.mul(*wj))))));
             *gj = T::ZERO;

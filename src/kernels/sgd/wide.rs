@@ -25,6 +25,30 @@ pub(super) trait Wide: Copy {
     /// w·x with 16 lanes and no flush, as [`tree::dot`] computes it.
     fn dot16(self, x: &[f32], w: &[f32]) -> f32;
 
+    /// `z[i] = ` [`Wide::dot16`] of row `rows[i]` of `x` (rows of `d` values) and the
+    /// model's first `d` weights, plus its bias `model[d]` if it has one, prefetching row
+    /// `ahead[i]` while row `rows[i]` is read. The bias is added here, one value at a
+    /// time: a vector pass over `z` afterwards would wait for each of the one-value stores
+    /// it spans.
+    #[inline(always)]
+    fn dots16(
+        self,
+        x: &[f32],
+        d: usize,
+        model: &[f32],
+        (rows, ahead): (&[usize], &[usize]),
+        z: &mut [f32],
+    ) {
+        let (w, b) = (&model[..d], model.get(d).copied());
+        for (i, (&r, zi)) in rows.iter().zip(z.iter_mut()).enumerate() {
+            if let Some(&next) = ahead.get(i) {
+                crate::kernels::hints::prefetch_all(&x[next * d..(next + 1) * d]);
+            }
+            let dot = self.dot16(&x[r * d..(r + 1) * d], w);
+            *zi = b.map_or(dot, |b| dot + b);
+        }
+    }
+
     /// `g[j] = g[j] + s[i]·x[r_i·d + j]` for every j < d, over the rows `r_i` of `rows` in
     /// order: one rounded product and one rounded sum per term, no flush.
     fn add_scaled(self, g: &mut [f32], x: &[f32], d: usize, rows: &[usize], s: &[f32]);
