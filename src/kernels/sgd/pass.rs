@@ -273,7 +273,8 @@ pub(super) fn stream<S: Trains, V: Wide>(
     (hyper, updates, snapshots, loss_sum): (&Hyper, &mut u64, &mut Vec<Model>, &mut f64),
 ) {
     let p = plan.p;
-    let ahead = (PREFETCH_BYTES / plan.stride).max(1) as usize;
+    // At least two rows: the predictions take rows in pairs.
+    let ahead = (PREFETCH_BYTES / plan.stride).max(2) as usize;
     let labels = plan.data.labels.as_slice().expect("contiguous labels");
     // The running loss in a local, passed through the trainer by value, so it stays in a
     // register.
