@@ -22,8 +22,8 @@ use crate::kernels::isa::{Isa, Level};
 
 /// The longest rows whose predictions [`Wide::dots16`] takes in pairs. Pairs gain 4–6 %
 /// at 64–256 values a row, where one row's chain of lane sums is short of filling the
-/// core; at 1024 they lost about 5 %, the memory stream being the limit there (measured
-/// on the bench).
+/// core; at 1024 they lost 5–10 % (measured on the bench, with and without software
+/// prefetching).
 const PAIRED_MAX: usize = 512;
 
 /// An instruction set's form of the 16-lane dot product and of the gradient sum.
