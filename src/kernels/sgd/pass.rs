@@ -21,7 +21,7 @@ use crate::ledger::{words_touched, Cursor, Traffic};
 /// How far ahead of the current sample its successors' rows are fetched, in bytes: far
 /// enough to hide memory latency behind a few samples' arithmetic (common practice for
 /// streaming loops; tuned on the bench).
-const PREFETCH_BYTES: u64 = 2048;
+pub(super) const PREFETCH_BYTES: u64 = 2048;
 
 /// The plan shared by all engines.
 pub(super) struct Plan<'a> {
@@ -273,15 +273,16 @@ pub(super) fn stream<S: Trains, V: Wide>(
     (hyper, updates, snapshots, loss_sum): (&Hyper, &mut u64, &mut Vec<Model>, &mut f64),
 ) {
     let p = plan.p;
-    // Only rows shorter than the distance are prefetched, at least two rows ahead (the
-    // predictions take rows in pairs). Longer rows are runs the hardware prefetcher
-    // follows by itself, and a row's lines hinted at once (32 or more) would hold more
-    // misses than the core can track, stalling it: at 1024 values a row and B = 16,
-    // prefetching cost about 8 % (B = 1 gained about 9 % from it; measured on the bench).
+    // Rows shorter than the distance are hinted whole, at least two rows ahead (the
+    // predictions take rows in pairs); longer ones one row ahead, which the float
+    // trainer's widest form hints a line per step of the row before's dot product. At
+    // 1024 values a row, spreading the hints gained 2–5 % at B = 16 and 15 % at B = 1 over
+    // none at all, which in turn beat hinting the row whole by about 8 % at B = 16
+    // (measured on the bench).
     let ahead = if plan.stride < PREFETCH_BYTES {
         (PREFETCH_BYTES / plan.stride).max(2) as usize
     } else {
-        0
+        1
     };
     let labels = plan.data.labels.as_slice().expect("contiguous labels");
     // The running loss in a local, passed through the trainer by value, so it stays in a
@@ -292,7 +293,7 @@ pub(super) fn stream<S: Trains, V: Wide>(
     for k in 0..n.div_ceil(p.batch) {
         let now = k * p.batch..((k + 1) * p.batch).min(n);
         let from = (now.start + ahead).min(n);
-        let next = from..(from + now.len() * usize::from(ahead > 0)).min(n);
+        let next = from..(from + now.len()).min(n);
         let (mb, next) = share.window(now, next, &mut buf);
         // The update's rates first: issued here, their divisions are done long before the
         // update waits on them (issued beside the update, they lengthen every minibatch's

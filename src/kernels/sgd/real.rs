@@ -190,6 +190,14 @@ impl<'a, T: Real, const FTZ: bool> FloatTrainer<'a, T, FTZ> {
             }
             _ => {
                 let (w, wb) = self.w.split_at(d);
+                // Long rows are left to the hardware here: hinted whole, their lines would
+                // stall the core (see `pass::stream`), and this loop has no steps to spread
+                // the hints over.
+                let ahead = if 4 * d < super::pass::PREFETCH_BYTES as usize {
+                    ahead
+                } else {
+                    &[]
+                };
                 for (i, (&r, zi)) in mb.iter().zip(zs.iter_mut()).enumerate() {
                     if let Some(&next) = ahead.get(i) {
                         crate::kernels::hints::prefetch_all(&all[next * d..(next + 1) * d]);

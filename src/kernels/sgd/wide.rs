@@ -31,6 +31,17 @@ pub(super) trait Wide: Copy {
     /// w·x with 16 lanes and no flush, as [`tree::dot`] computes it.
     fn dot16(self, x: &[f32], w: &[f32]) -> f32;
 
+    /// [`Wide::dot16`], hinting the cache to fetch row `next` meanwhile; a form may spread
+    /// the hints over its steps, one line a step, which long rows need (hinted at once,
+    /// 32 lines or more hold more misses than the core tracks and stall it).
+    #[inline(always)]
+    fn dot16_fetching(self, x: &[f32], w: &[f32], next: Option<&[f32]>) -> f32 {
+        if let Some(n) = next {
+            crate::kernels::hints::prefetch_all(n);
+        }
+        self.dot16(x, w)
+    }
+
     /// [`Wide::dot16`] of two rows with the same `w`; a form may run the two dependency
     /// chains side by side in one loop, which long rows need to keep the core busy.
     #[inline(always)]
@@ -76,8 +87,7 @@ pub(super) trait Wide: Copy {
             (zp[0], zp[1]) = (bias(za), bias(zb));
         }
         for (i, (&r, zi)) in rows.iter().zip(z.iter_mut()).enumerate().skip(paired) {
-            fetch(i);
-            *zi = bias(self.dot16(row(r), w));
+            *zi = bias(self.dot16_fetching(row(r), w, ahead.get(i).map(|&n| row(n))));
         }
     }
 
@@ -243,6 +253,27 @@ impl Wide for Avx512 {
             let (xp, wp) = (x.as_ptr(), w.as_ptr());
             let mut acc = _mm512_setzero_ps();
             for i in (0..n).step_by(16) {
+                acc = _mm512_add_ps(acc, products16(xp, wp, i, n));
+            }
+            tree16(acc)
+        }
+    }
+
+    /// One line of `next` hinted a step (16 values, one 64-byte line).
+    #[inline(always)]
+    fn dot16_fetching(self, x: &[f32], w: &[f32], next: Option<&[f32]>) -> f32 {
+        use std::arch::x86_64::*;
+        let Some(nx) = next else {
+            return self.dot16(x, w);
+        };
+        let n = x.len().min(w.len());
+        // SAFETY: as `dot16`; a prefetch only hints the cache and never faults, whatever
+        // the address (the hints past a shorter `next` are harmless).
+        unsafe {
+            let (xp, wp, np) = (x.as_ptr(), w.as_ptr(), nx.as_ptr());
+            let mut acc = _mm512_setzero_ps();
+            for i in (0..n).step_by(16) {
+                _mm_prefetch::<_MM_HINT_T0>(np.wrapping_add(i).cast());
                 acc = _mm512_add_ps(acc, products16(xp, wp, i, n));
             }
             tree16(acc)
@@ -425,14 +456,20 @@ mod tests {
     /// Every form this CPU has.
     fn forms() -> Vec<Form> {
         let isa = Isa::detect();
-        let mut v: Vec<Form> = vec![Box::new(|x, w| Portable.dot16(x, w))];
+        // Each form alone and while hinting a row ahead (here the row itself).
+        let mut v: Vec<Form> = vec![
+            Box::new(|x, w| Portable.dot16(x, w)),
+            Box::new(|x, w| Portable.dot16_fetching(x, w, Some(x))),
+        ];
         #[cfg(target_arch = "x86_64")]
         {
             if let Some(f) = Avx512::new(isa) {
                 v.push(Box::new(move |x, w| f.dot16(x, w)));
+                v.push(Box::new(move |x, w| f.dot16_fetching(x, w, Some(x))));
             }
             if let Some(f) = Avx2::new(isa) {
                 v.push(Box::new(move |x, w| f.dot16(x, w)));
+                v.push(Box::new(move |x, w| f.dot16_fetching(x, w, Some(x))));
             }
         }
         v
