@@ -43,7 +43,8 @@ pub(super) trait Wide: Copy {
     }
 
     /// [`Wide::dot16`] of two rows with the same `w`; a form may run the two dependency
-    /// chains side by side in one loop, which long rows need to keep the core busy.
+    /// chains side by side in one loop, which rows of a few hundred values need to keep
+    /// the core busy.
     #[inline(always)]
     fn dot16_pair(self, xa: &[f32], xb: &[f32], w: &[f32]) -> (f32, f32) {
         (self.dot16(xa, w), self.dot16(xb, w))
