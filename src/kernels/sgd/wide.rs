@@ -454,26 +454,36 @@ mod tests {
     /// A form as a plain function of (x, w).
     type Form = Box<dyn Fn(&[f32], &[f32]) -> f32>;
 
-    /// Every form this CPU has.
+    /// `$make(f)` for every form `f` this CPU has, concatenated: a macro, as the forms
+    /// are distinct types.
+    macro_rules! every_form {
+        (|$f:ident| $make:expr) => {{
+            #[cfg_attr(not(target_arch = "x86_64"), allow(unused_mut))]
+            let mut v = {
+                let $f = Portable;
+                $make
+            };
+            #[cfg(target_arch = "x86_64")]
+            {
+                let isa = Isa::detect();
+                if let Some($f) = Avx512::new(isa) {
+                    v.extend($make);
+                }
+                if let Some($f) = Avx2::new(isa) {
+                    v.extend($make);
+                }
+            }
+            v
+        }};
+    }
+
+    /// Every form this CPU has, each alone and while hinting a row ahead (here the row
+    /// itself).
     fn forms() -> Vec<Form> {
-        let isa = Isa::detect();
-        // Each form alone and while hinting a row ahead (here the row itself).
-        let mut v: Vec<Form> = vec![
-            Box::new(|x, w| Portable.dot16(x, w)),
-            Box::new(|x, w| Portable.dot16_fetching(x, w, Some(x))),
-        ];
-        #[cfg(target_arch = "x86_64")]
-        {
-            if let Some(f) = Avx512::new(isa) {
-                v.push(Box::new(move |x, w| f.dot16(x, w)));
-                v.push(Box::new(move |x, w| f.dot16_fetching(x, w, Some(x))));
-            }
-            if let Some(f) = Avx2::new(isa) {
-                v.push(Box::new(move |x, w| f.dot16(x, w)));
-                v.push(Box::new(move |x, w| f.dot16_fetching(x, w, Some(x))));
-            }
-        }
-        v
+        every_form!(|f| vec![
+            Box::new(move |x: &[f32], w: &[f32]| f.dot16(x, w)) as Form,
+            Box::new(move |x: &[f32], w: &[f32]| f.dot16_fetching(x, w, Some(x))),
+        ])
     }
 
     proptest! {
@@ -498,18 +508,9 @@ mod tests {
 
     /// Every pair form this CPU has.
     fn pair_forms() -> Vec<PairForm> {
-        let isa = Isa::detect();
-        let mut v: Vec<PairForm> = vec![Box::new(|a, b, w| Portable.dot16_pair(a, b, w))];
-        #[cfg(target_arch = "x86_64")]
-        {
-            if let Some(f) = Avx512::new(isa) {
-                v.push(Box::new(move |a, b, w| f.dot16_pair(a, b, w)));
-            }
-            if let Some(f) = Avx2::new(isa) {
-                v.push(Box::new(move |a, b, w| f.dot16_pair(a, b, w)));
-            }
-        }
-        v
+        every_form!(|f| vec![Box::new(move |a: &[f32], b: &[f32], w: &[f32]| {
+            f.dot16_pair(a, b, w)
+        }) as PairForm])
     }
 
     proptest! {
@@ -540,19 +541,11 @@ mod tests {
 
     /// Every gradient-sum form this CPU has.
     fn sum_forms() -> Vec<SumForm> {
-        let isa = Isa::detect();
-        let mut v: Vec<SumForm> =
-            vec![Box::new(|g, x, d, r, s| Portable.add_scaled(g, x, d, r, s))];
-        #[cfg(target_arch = "x86_64")]
-        {
-            if let Some(f) = Avx512::new(isa) {
-                v.push(Box::new(move |g, x, d, r, s| f.add_scaled(g, x, d, r, s)));
+        every_form!(|f| vec![Box::new(
+            move |g: &mut [f32], x: &[f32], d: usize, r: &[usize], s: &[f32]| {
+                f.add_scaled(g, x, d, r, s)
             }
-            if let Some(f) = Avx2::new(isa) {
-                v.push(Box::new(move |g, x, d, r, s| f.add_scaled(g, x, d, r, s)));
-            }
-        }
-        v
+        ) as SumForm])
     }
 
     proptest! {
