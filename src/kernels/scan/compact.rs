@@ -69,14 +69,39 @@ fn walk_word(base: u32, m: u64, mut put: impl FnMut(u32)) {
 /// The ids of set bits must fit in `u32`.
 #[inline(always)]
 pub fn push_ids_u32(out: &mut Vec<u8>, base: u32, m: u64) {
-    if m.count_ones() <= SPARSE {
-        return walk_word(base, m, |id| out.extend_from_slice(&id.to_le_bytes()));
+    let n = m.count_ones() as usize;
+    if n <= SPARSE as usize {
+        // The first SPARSE set bits are taken whatever the count, and the count says how
+        // many to keep: no branch follows the data (a word's count is as unpredictable
+        // as the data is).
+        let mut ids = [0u8; 4 * SPARSE as usize];
+        let mut w = m;
+        for id in ids.chunks_exact_mut(4) {
+            id.copy_from_slice(&base.wrapping_add(w.trailing_zeros()).to_le_bytes());
+            w &= w.wrapping_sub(1);
+        }
+        return append_prefix(out, &ids, 4 * n);
     }
     // Each byte writes 32 bytes from where the kept ones end, so the word is staged in a
     // buffer with room for 64 + 8 ids and copied out once.
     let mut buf = [0u8; 4 * (64 + 8)];
     let at = table_word(&mut buf, base, m);
     out.extend_from_slice(&buf[..at]);
+}
+
+/// Appends the first `n` bytes of `bytes` to `out` with one capacity check and a copy of
+/// fixed size (all `N` bytes go into the spare capacity; `n` of them are kept).
+#[inline(always)]
+fn append_prefix<const N: usize>(out: &mut Vec<u8>, bytes: &[u8; N], n: usize) {
+    assert!(n <= N, "a prefix of the bytes");
+    out.reserve(N);
+    let len = out.len();
+    for (d, &b) in out.spare_capacity_mut()[..N].iter_mut().zip(bytes) {
+        d.write(b);
+    }
+    // SAFETY: `reserve(N)` made room for N more bytes, and the first N of the spare
+    // capacity, so the first `n <= N`, were written just above.
+    unsafe { out.set_len(len + n) };
 }
 
 /// Writes, as little-endian `u32`, `base + 64k + j` for every set bit j of `masks[k]`,

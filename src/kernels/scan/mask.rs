@@ -1,13 +1,16 @@
 //! Predicate evaluation into bit masks: 64 rows → one `u64` (row i in bit i).
 //!
-//! Each leaf test runs as one tight, branch-free loop over a column chunk that the compiler
-//! turns into vector compares; leaves combine with word-wide `and`/`or`/`not`. The loops are
-//! compiled three times (AVX-512, AVX2, baseline) and the widest one the CPU supports is
-//! chosen at run time, so users never need `target-cpu=native`.
+//! Each leaf test runs as one tight, branch-free loop over a column chunk: explicit vector
+//! compares on AVX-512 and AVX2 (`avx512`, `avx2`, both walked by `stream`), a loop the
+//! compiler vectorises elsewhere; leaves combine with word-wide `and`/`or`/`not`. The
+//! widest path the CPU supports is chosen at run time, so users never need
+//! `target-cpu=native`.
 
 use crate::kernels::predicate::{Bound, CmpOp, Scalar, Test};
 use crate::table::Table;
 
+#[cfg(target_arch = "x86_64")]
+use super::{avx2, avx512, stream::VectorLane};
 pub use crate::kernels::isa::Isa;
 use crate::kernels::isa::Level;
 
@@ -132,33 +135,41 @@ fn leaf_body<T: Lane>(xs: &[T], test: &Test, out: &mut [u64]) {
     }
 }
 
-/// # Safety
-/// The CPU must support AVX2, BMI1, BMI2 and POPCNT (an AVX2 [`Isa`] proves it).
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2,bmi1,bmi2,popcnt")]
-unsafe fn leaf_avx2<T: Lane>(xs: &[T], test: &Test, out: &mut [u64]) {
-    leaf_body(xs, test, out)
-}
-
 fn leaf_portable<T: Lane>(xs: &[T], test: &Test, out: &mut [u64]) {
     leaf_body(xs, test, out)
 }
 
+/// Where a visit hands its mask words: `word(bucket, i, mask)`. A closure is one; the
+/// scan's hot sinks are types whose method is `#[inline(always)]`, so the vector walk
+/// inlines them: a sink left out of line clobbers the vector registers on every word and
+/// runs without the path's instruction set (`count_ones` without `popcnt`).
+pub trait Words {
+    /// Takes mask word `i` (bucket `bucket`).
+    fn word(&mut self, bucket: usize, i: usize, m: u64);
+}
+
+impl<F: FnMut(usize, usize, u64)> Words for F {
+    #[inline(always)]
+    fn word(&mut self, bucket: usize, i: usize, m: u64) {
+        self(bucket, i, m)
+    }
+}
+
 /// A lane type with every instruction-set path available on this target.
 #[cfg(target_arch = "x86_64")]
-pub trait Simd: Lane + super::avx512::Avx512Lane {}
+pub trait Simd: VectorLane<avx512::Avx512> + VectorLane<avx2::Avx2> {}
 #[cfg(target_arch = "x86_64")]
-impl<T: Lane + super::avx512::Avx512Lane> Simd for T {}
+impl<T: VectorLane<avx512::Avx512> + VectorLane<avx2::Avx2>> Simd for T {}
 /// A lane type with every instruction-set path available on this target.
 #[cfg(not(target_arch = "x86_64"))]
 pub trait Simd: Lane {}
 #[cfg(not(target_arch = "x86_64"))]
 impl<T: Lane> Simd for T {}
 
-/// Buckets [`visit`] reports words in: the interleaved runs of the AVX-512 walk and its
+/// Buckets [`visit`] reports words in: the interleaved runs of the vector walk and its
 /// remainder, or a single bucket elsewhere.
 #[cfg(target_arch = "x86_64")]
-pub const BUCKETS: usize = super::avx512::STREAMS + 1;
+pub const BUCKETS: usize = super::stream::STREAMS + 1;
 /// Buckets [`visit`] reports words in.
 #[cfg(not(target_arch = "x86_64"))]
 pub const BUCKETS: usize = 1;
@@ -172,33 +183,35 @@ fn tail_word<T: Lane>(xs: &[T], done: usize, test: &Test) -> u64 {
 
 /// Calls `sink(bucket, i, mask)` for every 64-row word of `xs` under `test` (buckets
 /// joined in order cover the words in order).
-fn leaf_visit<T: Simd, S: FnMut(usize, usize, u64)>(isa: Isa, xs: &[T], test: &Test, sink: &mut S) {
+fn leaf_visit<T: Simd, S: Words>(isa: Isa, xs: &[T], test: &Test, sink: &mut S) {
     #[cfg(target_arch = "x86_64")]
-    if isa.level() == Level::Avx512 {
-        // SAFETY: an AVX-512 `Isa` exists only after run-time detection of every feature
-        // `avx512::leaf` enables (see `kernels::isa`).
-        let done = unsafe { super::avx512::leaf(xs, test, sink) };
+    if isa.level() != Level::Portable {
+        let done = if isa.level() == Level::Avx512 {
+            // SAFETY: an AVX-512 `Isa` exists only after run-time detection of every
+            // feature `avx512::leaf` enables (see `kernels::isa`).
+            unsafe { avx512::leaf(xs, test, sink) }
+        } else {
+            // SAFETY: an AVX2 `Isa` exists only after run-time detection of every feature
+            // `avx2::leaf` enables (see `kernels::isa`).
+            unsafe { avx2::leaf(xs, test, sink) }
+        };
         if done < xs.len() {
-            sink(BUCKETS - 1, done / 64, tail_word(xs, done, test));
+            sink.word(BUCKETS - 1, done / 64, tail_word(xs, done, test));
         }
         return;
     }
     let mut masks = vec![0u64; xs.len().div_ceil(64)];
     leaf(isa, xs, test, &mut masks);
     for (i, &m) in masks.iter().enumerate() {
-        sink(0, i, m);
+        sink.word(0, i, m);
     }
 }
 
 fn leaf<T: Simd>(isa: Isa, xs: &[T], test: &Test, out: &mut [u64]) {
     match isa.level() {
-        #[cfg(target_arch = "x86_64")]
-        Level::Avx512 => leaf_visit(isa, xs, test, &mut |_, i, m| out[i] = m),
-        #[cfg(target_arch = "x86_64")]
-        // SAFETY: an AVX2 `Isa` exists only after run-time detection of AVX2, BMI1, BMI2
-        // and POPCNT, the features `leaf_avx2` enables (see `kernels::isa`).
-        Level::Avx2 => unsafe { leaf_avx2(xs, test, out) },
         Level::Portable => leaf_portable(xs, test, out),
+        #[cfg(target_arch = "x86_64")]
+        _ => leaf_visit(isa, xs, test, &mut |_, i, m| out[i] = m),
     }
 }
 
@@ -207,7 +220,7 @@ fn leaf<T: Simd>(isa: Isa, xs: &[T], test: &Test, out: &mut [u64]) {
 /// order. A single comparison on AVX-512 streams from memory straight to the sink, so
 /// matches are used while the data is in flight; other predicates are evaluated into
 /// `masks` first and reported in order.
-pub fn visit<S: FnMut(usize, usize, u64)>(
+pub fn visit<S: Words>(
     isa: Isa,
     pred: &Bound,
     table: &Table,
@@ -217,7 +230,7 @@ pub fn visit<S: FnMut(usize, usize, u64)>(
     sink: &mut S,
 ) {
     #[cfg(target_arch = "x86_64")]
-    if let (Bound::Leaf { col, test }, Level::Avx512) = (pred, isa.level()) {
+    if let (Bound::Leaf { col, test }, false) = (pred, isa.level() == Level::Portable) {
         let r = rows;
         return crate::with_column_data!(&table.columns[*col].data, v => leaf_visit(isa, &v[r], test, sink));
     }
@@ -225,7 +238,7 @@ pub fn visit<S: FnMut(usize, usize, u64)>(
     let n = rows.len().div_ceil(64);
     eval(isa, pred, table, rows, &mut masks[..n], scratch);
     for (i, &m) in masks[..n].iter().enumerate() {
-        sink(0, i, m);
+        sink.word(0, i, m);
     }
 }
 

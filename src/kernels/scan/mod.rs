@@ -15,10 +15,14 @@
 //! the whole partition's.
 
 #[cfg(target_arch = "x86_64")]
+mod avx2;
+#[cfg(target_arch = "x86_64")]
 mod avx512;
 mod compact;
 mod mask;
 mod plan;
+#[cfg(target_arch = "x86_64")]
+mod stream;
 
 pub use crate::kernels::isa::Isa;
 pub use mask::for_each_match;
@@ -233,8 +237,51 @@ pub fn scan_partition(
     }
 }
 
-/// Visits the mask words of rows `r` and calls `put(piece, word index in chunk, mask
-/// word)` for every word; returns the match count.
+/// How an output takes one mask word into its piece: `put(piece, word index in chunk,
+/// mask word)`. A closure is one; [`U32Ids`], the hot output, is a type whose method the
+/// vector walk inlines (see `mask::Words`).
+trait PutWord {
+    fn put(&mut self, p: &mut Piece, i: usize, m: u64);
+}
+
+impl<F: FnMut(&mut Piece, usize, u64)> PutWord for F {
+    #[inline(always)]
+    fn put(&mut self, p: &mut Piece, i: usize, m: u64) {
+        self(p, i, m)
+    }
+}
+
+/// `u32` row ids (see [`Piece::put_ids_u32`]): deferred words go to `masks`; `base` is
+/// the id of the chunk's first row.
+struct U32Ids<'a> {
+    masks: &'a mut [u64],
+    base: u64,
+}
+
+impl PutWord for U32Ids<'_> {
+    #[inline(always)]
+    fn put(&mut self, p: &mut Piece, i: usize, m: u64) {
+        p.put_ids_u32(self.masks, i, (self.base + 64 * i as u64) as u32, m)
+    }
+}
+
+/// Counts each word's matches and hands the word to its bucket's piece.
+struct Tally<'a, P> {
+    count: u64,
+    pieces: &'a mut [Piece; mask::BUCKETS],
+    put: P,
+}
+
+impl<P: PutWord> mask::Words for Tally<'_, P> {
+    #[inline(always)]
+    fn word(&mut self, bucket: usize, i: usize, m: u64) {
+        self.count += u64::from(m.count_ones());
+        self.put.put(&mut self.pieces[bucket], i, m);
+    }
+}
+
+/// Visits the mask words of rows `r` and hands every word to `put`; returns the match
+/// count.
 #[inline(always)]
 fn visit_words(
     isa: Isa,
@@ -243,9 +290,13 @@ fn visit_words(
     r: std::ops::Range<usize>,
     (masks, scratch): &mut (Vec<u64>, mask::Scratch),
     pieces: &mut [Piece; mask::BUCKETS],
-    mut put: impl FnMut(&mut Piece, usize, u64),
+    put: impl PutWord,
 ) -> u64 {
-    let mut count = 0u64;
+    let mut tally = Tally {
+        count: 0,
+        pieces,
+        put,
+    };
     mask::visit(
         isa,
         &params.predicate,
@@ -253,12 +304,9 @@ fn visit_words(
         r,
         masks,
         scratch,
-        &mut |k, i, m| {
-            count += u64::from(m.count_ones());
-            put(&mut pieces[k], i, m);
-        },
+        &mut tally,
     );
-    count
+    tally.count
 }
 
 /// Like [`visit_words`], calling `put(piece bytes, row in chunk)` for every matching row.
@@ -312,9 +360,7 @@ fn scan_chunk(
         ScanOutput::RowIds => {
             // The job chooses u32 ids only when every row id fits (and a chunk is whole
             // mask words, so the last word's ids fit too).
-            let put = |p: &mut Piece, i: usize, m: u64| {
-                p.put_ids_u32(masks, i, (base + 64 * i as u64) as u32, m)
-            };
+            let put = U32Ids { masks, base };
             visit_words(isa, table, params, r, worker, pieces, put)
         }
         ScanOutput::Project(cols) => {
