@@ -38,11 +38,67 @@ const LINE_WORDS: usize = (LINE_BYTES / 8) as usize;
 /// buffers, so that timer and thread wake-up overhead stay small against the run.
 const MIN_BYTES_PER_SAMPLE: u64 = 64 << 20;
 
-/// The read loop walks each thread's slice as this many interleaved contiguous
-/// streams: measured on a 2-core AVX-512 server VM, one core read DRAM 5-15%
-/// faster that way than as a single stream, the prefetchers keeping more lines
-/// in flight.
-const READ_STREAMS: usize = 4;
+/// How the read loop walks each thread's slice: as this many interleaved contiguous
+/// streams, with or without software prefetch [`READ_AHEAD_BYTES`] ahead of each.
+///
+/// No one shape reads fastest everywhere: on a 2-core AVX-512 server VM four streams read
+/// DRAM 5-15% faster than one; on a 2-core AVX2-only one, one or two plain streams read
+/// about 17 GB/s on one core where four read about 10 GB/s, and a scan walking four
+/// prefetched streams outran the four-stream reference. So every host's reference is the
+/// fastest of [`READ_SHAPES`], chosen per thread count by [`fastest_shape`].
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct ReadShape {
+    /// Interleaved streams per thread (1, 2 or 4).
+    pub streams: usize,
+    /// Software prefetch ahead of each stream.
+    pub prefetch: bool,
+}
+
+impl ReadShape {
+    const fn new(streams: usize, prefetch: bool) -> ReadShape {
+        ReadShape { streams, prefetch }
+    }
+}
+
+impl std::fmt::Display for ReadShape {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        let pf = if self.prefetch { "+prefetch" } else { "" };
+        write!(f, "{}x{pf}", self.streams)
+    }
+}
+
+/// The read loop shapes each host tries.
+pub const READ_SHAPES: [ReadShape; 6] = [
+    ReadShape::new(1, false),
+    ReadShape::new(2, false),
+    ReadShape::new(4, false),
+    ReadShape::new(1, true),
+    ReadShape::new(2, true),
+    ReadShape::new(4, true),
+];
+
+/// How far ahead of each stream a prefetching read loop asks for lines, in bytes: as far
+/// as the kernels' own walks prefetch.
+const READ_AHEAD_BYTES: usize = 2048;
+
+/// Timed passes per shape when choosing the fastest.
+const SHAPE_TRIALS: usize = 3;
+
+/// The read loop shape that reads `parts` fastest (one part per thread of `pool`, by
+/// median of [`SHAPE_TRIALS`] passes after one untimed pass).
+pub fn fastest_shape(isa: Isa, pool: &rayon::ThreadPool, parts: &[&[u64]]) -> ReadShape {
+    let median = |shape: ReadShape| {
+        let times = time_runs(1, SHAPE_TRIALS, &mut || {
+            pool.broadcast(|ctx| black_box(read_sum(isa, shape, black_box(parts[ctx.index()]))));
+        });
+        summarize(&times).median_s
+    };
+    let timed: Vec<(f64, ReadShape)> = READ_SHAPES.iter().map(|&s| (median(s), s)).collect();
+    timed
+        .into_iter()
+        .min_by(|a, b| a.0.total_cmp(&b.0))
+        .map_or(READ_SHAPES[0], |(_, s)| s)
+}
 
 /// Errors from calibration and from loading a saved calibration.
 #[derive(Debug, thiserror::Error)]
@@ -251,10 +307,11 @@ pub fn calibrate(
 
         let read_s = {
             let src_parts = slices(src.as_slice(), &ranges);
+            let shape = fastest_shape(isa, &pool, &src_parts);
             timings(&mut || {
                 pool.broadcast(|ctx| {
                     for _ in 0..passes {
-                        black_box(read_sum(isa, black_box(src_parts[ctx.index()])));
+                        black_box(read_sum(isa, shape, black_box(src_parts[ctx.index()])));
                     }
                 });
             })
@@ -437,10 +494,14 @@ fn cpu_model() -> String {
 
 /// A streaming read pass over its own buffer, split across the threads of the current
 /// rayon pool in line-aligned slices: the reference of the interleaved benches
-/// (`bench::interleave`). The loop is the calibration's read loop.
+/// (`bench::interleave`). The loop is the calibration's read loop, in the shape that
+/// reads fastest on this host at the pool's thread count (chosen on the first pass at
+/// each count).
 pub struct ReadReference {
     buf: AlignedWords,
     isa: Isa,
+    /// The shape chosen for each thread count so far.
+    shapes: Mutex<Vec<(usize, ReadShape)>>,
 }
 
 impl ReadReference {
@@ -457,6 +518,7 @@ impl ReadReference {
         Ok(ReadReference {
             buf,
             isa: Isa::detect(),
+            shapes: Mutex::new(Vec::new()),
         })
     }
 
@@ -465,13 +527,31 @@ impl ReadReference {
         self.buf.words as u64 * 8
     }
 
-    /// One pass: every thread of the current pool reads its slice once.
+    /// The shape used at `threads` threads, if a pass at that count has run.
+    pub fn shape(&self, threads: usize) -> Option<ReadShape> {
+        let shapes = self.shapes.lock().unwrap_or_else(PoisonError::into_inner);
+        shapes.iter().find(|s| s.0 == threads).map(|s| s.1)
+    }
+
+    /// One pass: every thread of the current pool reads its slice once. The first pass
+    /// at a thread count first times every shape (see [`fastest_shape`]).
     pub fn run(&self) {
         let data = self.buf.as_slice();
-        let ranges = split_lines(data.len(), rayon::current_num_threads());
+        let threads = rayon::current_num_threads();
+        let ranges = split_lines(data.len(), threads);
+        let shape = self.shape(threads).unwrap_or_else(|| {
+            let parts = slices(data, &ranges);
+            let pool = ThreadPoolBuilder::new().num_threads(threads).build();
+            // A pool that cannot start leaves the first shape; the pass below still runs.
+            let shape = pool.map_or(READ_SHAPES[0], |p| fastest_shape(self.isa, &p, &parts));
+            let mut shapes = self.shapes.lock().unwrap_or_else(PoisonError::into_inner);
+            shapes.push((threads, shape));
+            shape
+        });
         rayon::broadcast(|ctx| {
             black_box(read_sum(
                 self.isa,
+                shape,
                 black_box(&data[ranges[ctx.index()].clone()]),
             ));
         });
@@ -485,23 +565,28 @@ trait Kernel {
     fn run(self) -> Self::Output;
 }
 
-/// Wrapping sum of every word, over [`READ_STREAMS`] interleaved streams with
-/// `LANES` independent accumulators each, so that many loads are in flight and
-/// the loop waits on memory rather than on the adds.
-struct ReadSum<'a, const LANES: usize>(&'a [u64]);
+/// Wrapping sum of every word, over `STREAMS` interleaved streams with `LANES`
+/// independent accumulators each (prefetching ahead of each with `PF`), so that many
+/// loads are in flight and the loop waits on memory rather than on the adds.
+struct ReadSum<'a, const LANES: usize, const STREAMS: usize, const PF: bool>(&'a [u64]);
 
-impl<const LANES: usize> Kernel for ReadSum<'_, LANES> {
+impl<const LANES: usize, const STREAMS: usize, const PF: bool> Kernel
+    for ReadSum<'_, LANES, STREAMS, PF>
+{
     type Output = u64;
 
     #[inline(always)]
     fn run(self) -> u64 {
-        let per_stream = self.0.len() / (READ_STREAMS * LANES) * LANES;
-        let (body, tail) = self.0.split_at(per_stream * READ_STREAMS);
-        let streams: [&[u64]; READ_STREAMS] =
+        let per_stream = self.0.len() / (STREAMS * LANES) * LANES;
+        let (body, tail) = self.0.split_at(per_stream * STREAMS);
+        let streams: [&[u64]; STREAMS] =
             std::array::from_fn(|k| &body[k * per_stream..(k + 1) * per_stream]);
-        let mut acc = [[0u64; LANES]; READ_STREAMS];
+        let mut acc = [[0u64; LANES]; STREAMS];
         for start in (0..per_stream).step_by(LANES) {
             for (lanes, stream) in acc.iter_mut().zip(&streams) {
+                if PF {
+                    prefetch_ahead(&stream[start..start + LANES]);
+                }
                 for (a, &w) in lanes.iter_mut().zip(&stream[start..start + LANES]) {
                     *a = a.wrapping_add(w);
                 }
@@ -512,6 +597,25 @@ impl<const LANES: usize> Kernel for ReadSum<'_, LANES> {
             .flatten()
             .fold(tail_sum, |s, w| s.wrapping_add(w))
     }
+}
+
+/// Asks for the lines [`READ_AHEAD_BYTES`] past `words` (one hint per line they span).
+#[inline(always)]
+fn prefetch_ahead(words: &[u64]) {
+    #[cfg(target_arch = "x86_64")]
+    {
+        let ahead = words.as_ptr().cast::<u8>().wrapping_add(READ_AHEAD_BYTES);
+        for line in (0..std::mem::size_of_val(words)).step_by(LINE_BYTES as usize) {
+            // SAFETY: a prefetch never faults, whatever the address (SSE is part of the
+            // x86-64 baseline).
+            unsafe {
+                use std::arch::x86_64::{_mm_prefetch, _MM_HINT_T0};
+                _mm_prefetch::<_MM_HINT_T0>(ahead.wrapping_add(line).cast());
+            }
+        }
+    }
+    #[cfg(not(target_arch = "x86_64"))]
+    let _ = words;
 }
 
 /// Stores one value into every word.
@@ -526,16 +630,35 @@ impl Kernel for Fill<'_> {
     }
 }
 
-/// Runs the read loop with accumulators filling the vector register file (32 zmm,
-/// 16 ymm or 16 xmm across the streams): with 4 zmm in all, one core read DRAM
+/// Runs the read loop in `shape`, with accumulators filling the vector register file
+/// (32 zmm, 16 ymm or 16 xmm across the streams): with 4 zmm in all, one core read DRAM
 /// about 30% slower in testing.
-fn read_sum(isa: Isa, data: &[u64]) -> u64 {
-    match isa.level() {
-        #[cfg(target_arch = "x86_64")]
-        Level::Avx512 => run_kernel(isa, ReadSum::<64>(data)),
-        #[cfg(target_arch = "x86_64")]
-        Level::Avx2 => run_kernel(isa, ReadSum::<16>(data)),
-        Level::Portable => run_kernel(isa, ReadSum::<8>(data)),
+fn read_sum(isa: Isa, shape: ReadShape, data: &[u64]) -> u64 {
+    macro_rules! shaped {
+        ($pf:literal) => {
+            match (isa.level(), shape.streams) {
+                #[cfg(target_arch = "x86_64")]
+                (Level::Avx512, 1) => run_kernel(isa, ReadSum::<256, 1, $pf>(data)),
+                #[cfg(target_arch = "x86_64")]
+                (Level::Avx512, 2) => run_kernel(isa, ReadSum::<128, 2, $pf>(data)),
+                #[cfg(target_arch = "x86_64")]
+                (Level::Avx512, _) => run_kernel(isa, ReadSum::<64, 4, $pf>(data)),
+                #[cfg(target_arch = "x86_64")]
+                (Level::Avx2, 1) => run_kernel(isa, ReadSum::<64, 1, $pf>(data)),
+                #[cfg(target_arch = "x86_64")]
+                (Level::Avx2, 2) => run_kernel(isa, ReadSum::<32, 2, $pf>(data)),
+                #[cfg(target_arch = "x86_64")]
+                (Level::Avx2, _) => run_kernel(isa, ReadSum::<16, 4, $pf>(data)),
+                (Level::Portable, 1) => run_kernel(isa, ReadSum::<32, 1, $pf>(data)),
+                (Level::Portable, 2) => run_kernel(isa, ReadSum::<16, 2, $pf>(data)),
+                (Level::Portable, _) => run_kernel(isa, ReadSum::<8, 4, $pf>(data)),
+            }
+        };
+    }
+    if shape.prefetch {
+        shaped!(true)
+    } else {
+        shaped!(false)
     }
 }
 
@@ -751,15 +874,17 @@ mod tests {
         // Lengths below one block (all tail), exactly whole blocks (no tail) and
         // between, each from every start offset within a line, so the streams,
         // the tail and unaligned starts are all checked against a plain sum.
-        let block = READ_STREAMS * 64;
+        let block = 256;
         let data: Vec<u64> = (0..block * 3 + 13 + LINE_WORDS).map(pattern).collect();
         for isa in Isa::available() {
-            for len in [0, 1, block - 1, block, block * 3, block * 3 + 13] {
-                for start in 0..LINE_WORDS {
-                    let part = &data[start..start + len];
-                    let plain = part.iter().fold(0u64, |s, &w| s.wrapping_add(w));
-                    let got = read_sum(isa, part);
-                    assert_eq!(got, plain, "{} len {len} from {start}", isa.name());
+            for shape in READ_SHAPES {
+                for len in [0, 1, block - 1, block, block * 3, block * 3 + 13] {
+                    for start in 0..LINE_WORDS {
+                        let part = &data[start..start + len];
+                        let plain = part.iter().fold(0u64, |s, &w| s.wrapping_add(w));
+                        let got = read_sum(isa, shape, part);
+                        assert_eq!(got, plain, "{} {shape} len {len} from {start}", isa.name());
+                    }
                 }
             }
         }

@@ -14,10 +14,10 @@
 
 use std::arch::x86_64::*;
 
+use super::mask::Words;
 use super::stream::{
     visit_cmp, VectorLane, EQ, F_EQ, F_GE, F_GT, F_LE, F_LT, F_NE, GE, GT, LE, LT, NE,
 };
-use super::mask::Words;
 use crate::kernels::predicate::{CmpOp, Test};
 
 /// The AVX2 path, as a [`VectorLane`] marker.
@@ -291,11 +291,7 @@ float_lane!(
 /// # Safety
 /// The CPU must support every feature enabled below (an AVX2 `Isa` proves it).
 #[target_feature(enable = "avx2,bmi1,bmi2,popcnt")]
-pub unsafe fn leaf<T: VectorLane<Avx2>, S: Words>(
-    xs: &[T],
-    test: &Test,
-    sink: &mut S,
-) -> usize {
+pub unsafe fn leaf<T: VectorLane<Avx2>, S: Words>(xs: &[T], test: &Test, sink: &mut S) -> usize {
     // SAFETY: the caller guarantees the features.
     unsafe { super::stream::leaf::<Avx2, T, S>(xs, test, sink) }
 }

@@ -10,10 +10,10 @@
 
 use std::arch::x86_64::*;
 
+use super::mask::Words;
 use super::stream::{
     visit_cmp, VectorLane, EQ, F_EQ, F_GE, F_GT, F_LE, F_LT, F_NE, GE, GT, LE, LT, NE,
 };
-use super::mask::Words;
 use crate::kernels::predicate::{CmpOp, Test};
 
 /// The AVX-512 path, as a [`VectorLane`] marker.
@@ -150,11 +150,7 @@ float_lane!(f64, 8, _mm512_set1_pd, _mm512_loadu_pd, _mm512_cmp_pd_mask);
 /// # Safety
 /// The CPU must support every feature enabled below (an AVX-512 `Isa` proves it).
 #[target_feature(enable = "avx512f,avx512bw,avx512vl,bmi1,bmi2,popcnt")]
-pub unsafe fn leaf<T: VectorLane<Avx512>, S: Words>(
-    xs: &[T],
-    test: &Test,
-    sink: &mut S,
-) -> usize {
+pub unsafe fn leaf<T: VectorLane<Avx512>, S: Words>(xs: &[T], test: &Test, sink: &mut S) -> usize {
     // SAFETY: the caller guarantees the features.
     unsafe { super::stream::leaf::<Avx512, T, S>(xs, test, sink) }
 }

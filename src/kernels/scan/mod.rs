@@ -297,15 +297,7 @@ fn visit_words(
         pieces,
         put,
     };
-    mask::visit(
-        isa,
-        &params.predicate,
-        table,
-        r,
-        masks,
-        scratch,
-        &mut tally,
-    );
+    mask::visit(isa, &params.predicate, table, r, masks, scratch, &mut tally);
     tally.count
 }
 

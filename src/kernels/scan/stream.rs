@@ -62,12 +62,7 @@ pub trait VectorLane<I>: Lane {
     ///
     /// # Safety
     /// As for [`VectorLane::cmp_mask`].
-    unsafe fn visit_cmp<S: Words>(
-        xs: &[Self],
-        op: CmpOp,
-        c: Self,
-        sink: &mut S,
-    ) -> usize;
+    unsafe fn visit_cmp<S: Words>(xs: &[Self], op: CmpOp, c: Self, sink: &mut S) -> usize;
 }
 
 /// The `visit_cmp` method of a [`VectorLane`] impl for path `$isa`, given its compare
@@ -76,12 +71,7 @@ pub trait VectorLane<I>: Lane {
 macro_rules! visit_cmp {
     ($isa:ty; $eq:ident, $lt:ident, $le:ident, $ne:ident, $ge:ident, $gt:ident) => {
         #[inline(always)]
-        unsafe fn visit_cmp<S: Words>(
-            xs: &[Self],
-            op: CmpOp,
-            c: Self,
-            sink: &mut S,
-        ) -> usize {
+        unsafe fn visit_cmp<S: Words>(xs: &[Self], op: CmpOp, c: Self, sink: &mut S) -> usize {
             use $crate::kernels::scan::stream::{visit, VectorLane};
             let lanes = <Self as VectorLane<$isa>>::LANES;
             // SAFETY (every arm): `visit` hands each closure a pointer to a whole
@@ -138,11 +128,7 @@ pub(super) use visit_cmp;
 /// # Safety
 /// The CPU must support path `I`'s instruction set.
 #[inline(always)]
-pub unsafe fn leaf<I, T: VectorLane<I>, S: Words>(
-    xs: &[T],
-    test: &Test,
-    sink: &mut S,
-) -> usize {
+pub unsafe fn leaf<I, T: VectorLane<I>, S: Words>(xs: &[T], test: &Test, sink: &mut S) -> usize {
     let lanes = <T as VectorLane<I>>::LANES;
     // SAFETY (whole body): the caller guarantees the features; `visit` gives the mask
     // closures only pointers to whole vectors of `xs`.
