@@ -304,10 +304,24 @@ mod tests {
             want.extend(naive(b, m));
         }
         prop_assert_eq!(&pushed, &want, "push");
+        // The staged writer streams whole lines and stores the shared lines at either end
+        // plainly, so the output starts at every offset within a line, with guard bytes
+        // on both sides that must stay as they were.
         for isa in Isa::available() {
-            let mut out = vec![0xa5u8; want.len()];
-            write_ids_u32(isa, words, base, &mut out);
-            prop_assert_eq!(&out, &want, "write on {}", isa.name());
+            for offset in [0, 4, 28, 60, 63] {
+                let mut buf = vec![0xa5u8; want.len() + 128];
+                write_ids_u32(isa, words, base, &mut buf[offset..offset + want.len()]);
+                let name = isa.name();
+                let got = &buf[offset..offset + want.len()];
+                prop_assert_eq!(got, &want[..], "write on {} at {}", name, offset);
+                let mut guards = buf[..offset].iter().chain(&buf[offset + want.len()..]);
+                prop_assert!(
+                    guards.all(|&b| b == 0xa5),
+                    "guards on {} at {}",
+                    name,
+                    offset
+                );
+            }
         }
         Ok(())
     }
