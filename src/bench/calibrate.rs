@@ -459,6 +459,8 @@ impl AlignedWords {
         padded
             .and_then(|n| storage.try_reserve_exact(n).ok())
             .ok_or(CalibrationError::Alloc { bytes })?;
+        // On 2 MiB pages, like the data the benches read (the SGD bench's copies).
+        crate::kernels::hints::advise_huge(&storage);
         storage.resize(storage.capacity(), 0);
         // Alignment only affects speed, so an unavailable offset falls back to 0.
         let offset = storage.as_ptr().align_offset(LINE_BYTES as usize);

@@ -14,7 +14,7 @@ use crate::kernels::scan::{
     fuse_ranges, scan_partition_into, EngineIo, Isa, ScanBuffers, ScanOutput, ScanParams,
 };
 use crate::plot::{Chart, Reference, Series};
-use crate::table::{ElemType, Table};
+use crate::table::{ColumnData, ElemType, Table};
 
 /// Start of the match range the bench's column is generated for.
 pub const LO: u32 = 1 << 20;
@@ -99,6 +99,19 @@ pub fn bench_table(rows: u64, selectivity: f64) -> Table {
     g.generate(0..rows)
 }
 
+/// `table` with its `u32` columns copied onto 2 MiB pages, as the read reference's buffer
+/// is, so both sides of the fraction read the same kind of pages.
+fn on_huge_pages(mut table: Table) -> Table {
+    for c in &mut table.columns {
+        if let ColumnData::U32(v) = &c.data {
+            let mut h = crate::kernels::hints::huge_vec(v.len());
+            h.extend_from_slice(v);
+            c.data = ColumnData::U32(h);
+        }
+    }
+    table
+}
+
 /// The bench's scan parameters: `v >= LO and v < HI`, row ids.
 pub fn bench_params(table: &Table) -> ScanParams {
     let text = format!("v >= {LO} and v < {HI}");
@@ -127,7 +140,7 @@ pub fn bench_scan(
     let total = p.threads.len() * p.selectivities.len();
     let mut points = Vec::new();
     for &s in &p.selectivities {
-        let table = bench_table(p.rows, s);
+        let table = on_huge_pages(bench_table(p.rows, s));
         table_for(s, &table);
         let params = bench_params(&table);
         let io = EngineIo::host(1);

@@ -43,11 +43,18 @@ pub fn prefetch_all<T>(items: &[T]) {
 /// of tens of MiB probed at random then costs a few TLB entries instead of thousands.
 pub fn huge_vec<T>(n: usize) -> Vec<T> {
     let v = Vec::with_capacity(n);
+    advise_huge(&v);
+    v
+}
+
+/// Asks the kernel to back the whole 2 MiB pages inside `v`'s allocation (its capacity)
+/// with transparent huge pages (Linux); call it before the pages are first touched.
+pub fn advise_huge<T>(v: &Vec<T>) {
     #[cfg(target_os = "linux")]
     {
         const HUGE: usize = 2 << 20;
         let start = v.as_ptr() as usize;
-        let end = start + n * std::mem::size_of::<T>();
+        let end = start + v.capacity() * std::mem::size_of::<T>();
         let (lo, hi) = (start.next_multiple_of(HUGE), end / HUGE * HUGE);
         if hi > lo {
             // SAFETY: the range lies inside `v`'s own allocation, and MADV_HUGEPAGE only
@@ -58,7 +65,8 @@ pub fn huge_vec<T>(n: usize) -> Vec<T> {
             }
         }
     }
-    v
+    #[cfg(not(target_os = "linux"))]
+    let _ = v;
 }
 
 /// Appends `bytes` to `out`, storing the whole 64-byte memory lines among them with
