@@ -139,96 +139,71 @@ macro_rules! int_lane {
     };
 }
 
-int_lane!(
+/// The unsigned and the signed lane type of one width: the same compares, the unsigned
+/// one flipping its top bit first.
+macro_rules! int_lanes {
+    ($u:ty, $i:ty, $lanes:expr, $set1:ident, $eq:ident, $gt:ident, $sub:ident, $bits:ident) => {
+        int_lane!(
+            $u,
+            $lanes,
+            $i,
+            <$i>::MIN,
+            false,
+            $set1,
+            $eq,
+            $gt,
+            $sub,
+            $bits
+        );
+        int_lane!(
+            $i,
+            $lanes,
+            $i,
+            <$i>::MIN,
+            true,
+            $set1,
+            $eq,
+            $gt,
+            $sub,
+            $bits
+        );
+    };
+}
+
+int_lanes!(
     u8,
-    32,
     i8,
-    i8::MIN,
-    false,
+    32,
     _mm256_set1_epi8,
     _mm256_cmpeq_epi8,
     _mm256_cmpgt_epi8,
     _mm256_sub_epi8,
     bits8
 );
-int_lane!(
-    i8,
-    32,
-    i8,
-    i8::MIN,
-    true,
-    _mm256_set1_epi8,
-    _mm256_cmpeq_epi8,
-    _mm256_cmpgt_epi8,
-    _mm256_sub_epi8,
-    bits8
-);
-int_lane!(
+int_lanes!(
     u16,
-    32,
     i16,
-    i16::MIN,
-    false,
+    32,
     _mm256_set1_epi16,
     _mm256_cmpeq_epi16,
     _mm256_cmpgt_epi16,
     _mm256_sub_epi16,
     bits16
 );
-int_lane!(
-    i16,
-    32,
-    i16,
-    i16::MIN,
-    true,
-    _mm256_set1_epi16,
-    _mm256_cmpeq_epi16,
-    _mm256_cmpgt_epi16,
-    _mm256_sub_epi16,
-    bits16
-);
-int_lane!(
+int_lanes!(
     u32,
-    8,
     i32,
-    i32::MIN,
-    false,
+    8,
     _mm256_set1_epi32,
     _mm256_cmpeq_epi32,
     _mm256_cmpgt_epi32,
     _mm256_sub_epi32,
     bits32
 );
-int_lane!(
-    i32,
-    8,
-    i32,
-    i32::MIN,
-    true,
-    _mm256_set1_epi32,
-    _mm256_cmpeq_epi32,
-    _mm256_cmpgt_epi32,
-    _mm256_sub_epi32,
-    bits32
-);
-int_lane!(
+int_lanes!(
     u64,
-    4,
-    i64,
-    i64::MIN,
-    false,
-    _mm256_set1_epi64x,
-    _mm256_cmpeq_epi64,
-    _mm256_cmpgt_epi64,
-    _mm256_sub_epi64,
-    bits64
-);
-int_lane!(
     i64,
     4,
-    i64,
-    i64::MIN,
-    true,
     _mm256_set1_epi64x,
     _mm256_cmpeq_epi64,
     _mm256_cmpgt_epi64,

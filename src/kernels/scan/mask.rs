@@ -217,9 +217,10 @@ fn leaf<T: Simd>(isa: Isa, xs: &[T], test: &Test, out: &mut [u64]) {
 
 /// Calls `sink(bucket, i, mask)` for every 64-row word i of rows `rows` under `pred`;
 /// within a bucket words ascend, and buckets `0..BUCKETS` in order cover the words in
-/// order. A single comparison on AVX-512 streams from memory straight to the sink, so
-/// matches are used while the data is in flight; other predicates are evaluated into
-/// `masks` first and reported in order.
+/// order. A single comparison on a vector path (AVX-512, AVX2) streams from memory
+/// straight to the sink, so matches are used while the data is in flight; other
+/// predicates, and the portable path, are evaluated into `masks` first and reported in
+/// order.
 pub fn visit<S: Words>(
     isa: Isa,
     pred: &Bound,
@@ -230,9 +231,11 @@ pub fn visit<S: Words>(
     sink: &mut S,
 ) {
     #[cfg(target_arch = "x86_64")]
-    if let (Bound::Leaf { col, test }, false) = (pred, isa.level() == Level::Portable) {
-        let r = rows;
-        return crate::with_column_data!(&table.columns[*col].data, v => leaf_visit(isa, &v[r], test, sink));
+    if let Bound::Leaf { col, test } = pred {
+        if isa.level() != Level::Portable {
+            let r = rows;
+            return crate::with_column_data!(&table.columns[*col].data, v => leaf_visit(isa, &v[r], test, sink));
+        }
     }
     masks.resize(rows.len().div_ceil(64), 0);
     let n = rows.len().div_ceil(64);

@@ -241,6 +241,7 @@ pub fn scan_partition(
 /// mask word)`. A closure is one; [`U32Ids`], the hot output, is a type whose method the
 /// vector walk inlines (see `mask::Words`).
 trait PutWord {
+    /// Takes word `i` (mask `m`) into piece `p`.
     fn put(&mut self, p: &mut Piece, i: usize, m: u64);
 }
 

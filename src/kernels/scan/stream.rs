@@ -155,8 +155,6 @@ pub const STREAMS: usize = 4;
 /// How far ahead of each run to prefetch, in bytes: a few cache lines, so lines arrive as
 /// a run crosses 4 KiB pages, where hardware prefetchers stop.
 const PREFETCH_BYTES: usize = 2048;
-/// Steps of the walk (one word of every run each) made before their words go to the sink.
-const STEPS: usize = 4;
 
 /// One 64-row mask word from `64 / lanes` calls of `f`, each giving the bits of `lanes`
 /// rows (`lanes` divides 64; a constant at every call, so the loop unrolls).
@@ -194,36 +192,22 @@ pub unsafe fn visit<T, S: Words>(
     let p = xs.as_ptr();
     let word_bytes = 64 * std::mem::size_of::<T>();
     let q = blocks / STREAMS;
-    let mut b = 0;
-    while b < q {
-        // The words of a few steps are made first and handed to the sink after: a sink
-        // that is not inlined clobbers the vector registers, so the compares' constants
-        // are reloaded once per batch rather than once per word.
-        let steps = STEPS.min(q - b);
-        let mut words = [[0u64; STREAMS]; STEPS];
-        for (s, ws) in words.iter_mut().enumerate().take(steps) {
-            for (k, w) in ws.iter_mut().enumerate() {
-                let i = k * q + b + s;
-                // SAFETY: `i < blocks`, so rows `64i..64i+64` are inside `xs`.
-                let at = unsafe { p.add(i * 64) };
-                let ahead = (at as *const u8).wrapping_add(PREFETCH_BYTES);
-                let mut line = 0;
-                while line < word_bytes {
-                    // SAFETY: a prefetch never faults, whatever the address (SSE is part
-                    // of the x86-64 baseline).
-                    unsafe { _mm_prefetch::<_MM_HINT_T0>(ahead.wrapping_add(line) as *const i8) };
-                    line += 64;
-                }
-                // SAFETY: `at` starts 64 rows inside `xs`; `f` is sound on them (caller).
-                *w = unsafe { word(at, lanes, &f) };
+    for b in 0..q {
+        for k in 0..STREAMS {
+            let i = k * q + b;
+            // SAFETY: `i < blocks`, so rows `64i..64i+64` are inside `xs`.
+            let at = unsafe { p.add(i * 64) };
+            let ahead = (at as *const u8).wrapping_add(PREFETCH_BYTES);
+            let mut line = 0;
+            while line < word_bytes {
+                // SAFETY: a prefetch never faults, whatever the address (SSE is part of
+                // the x86-64 baseline).
+                unsafe { _mm_prefetch::<_MM_HINT_T0>(ahead.wrapping_add(line) as *const i8) };
+                line += 64;
             }
+            // SAFETY: `at` starts 64 rows inside `xs`; `f` is sound on them (caller).
+            sink.word(k, i, unsafe { word(at, lanes, &f) });
         }
-        for (s, ws) in words.iter().enumerate().take(steps) {
-            for (k, &w) in ws.iter().enumerate() {
-                sink.word(k, k * q + b + s, w);
-            }
-        }
-        b += steps;
     }
     for i in q * STREAMS..blocks {
         // SAFETY: as above, `i < blocks`.
