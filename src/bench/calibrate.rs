@@ -84,18 +84,18 @@ const READ_AHEAD_BYTES: usize = 2048;
 /// Timed passes per shape when choosing the fastest.
 const SHAPE_TRIALS: usize = 3;
 
-/// The read loop shape that reads `parts` fastest (one part per thread of `pool`, by
-/// median of [`SHAPE_TRIALS`] passes after one untimed pass).
-pub fn fastest_shape(isa: Isa, pool: &rayon::ThreadPool, parts: &[&[u64]]) -> ReadShape {
+/// The read loop shape that reads `parts` fastest on the current rayon pool (one part
+/// per thread), by median of [`SHAPE_TRIALS`] passes after one untimed pass.
+pub fn fastest_shape(isa: Isa, parts: &[&[u64]]) -> ReadShape {
     let median = |shape: ReadShape| {
         let times = time_runs(1, SHAPE_TRIALS, &mut || {
-            pool.broadcast(|ctx| black_box(read_sum(isa, shape, black_box(parts[ctx.index()]))));
+            rayon::broadcast(|ctx| black_box(read_sum(isa, shape, black_box(parts[ctx.index()]))));
         });
         summarize(&times).median_s
     };
-    let timed: Vec<(f64, ReadShape)> = READ_SHAPES.iter().map(|&s| (median(s), s)).collect();
-    timed
-        .into_iter()
+    READ_SHAPES
+        .iter()
+        .map(|&s| (median(s), s))
         .min_by(|a, b| a.0.total_cmp(&b.0))
         .map_or(READ_SHAPES[0], |(_, s)| s)
 }
@@ -307,7 +307,7 @@ pub fn calibrate(
 
         let read_s = {
             let src_parts = slices(src.as_slice(), &ranges);
-            let shape = fastest_shape(isa, &pool, &src_parts);
+            let shape = pool.install(|| fastest_shape(isa, &src_parts));
             timings(&mut || {
                 pool.broadcast(|ctx| {
                     for _ in 0..passes {
@@ -542,10 +542,7 @@ impl ReadReference {
         let threads = rayon::current_num_threads();
         let ranges = split_lines(data.len(), threads);
         let shape = self.shape(threads).unwrap_or_else(|| {
-            let parts = slices(data, &ranges);
-            let pool = ThreadPoolBuilder::new().num_threads(threads).build();
-            // A pool that cannot start leaves the first shape; the pass below still runs.
-            let shape = pool.map_or(READ_SHAPES[0], |p| fastest_shape(self.isa, &p, &parts));
+            let shape = fastest_shape(self.isa, &slices(data, &ranges));
             let mut shapes = self.shapes.lock().unwrap_or_else(PoisonError::into_inner);
             shapes.push((threads, shape));
             shape
