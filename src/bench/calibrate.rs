@@ -629,10 +629,11 @@ impl Kernel for Fill<'_> {
     }
 }
 
-/// Runs the read loop in `shape`, with accumulators filling the vector register file
-/// (32 zmm, 16 ymm or 16 xmm across the streams): with 4 zmm in all, one core read DRAM
-/// about 30% slower in testing.
-fn read_sum(isa: Isa, shape: ReadShape, data: &[u64]) -> u64 {
+/// The wrapping sum of `data`, read by the loop in `shape` (the reference's loop, for
+/// benches that read their own buffers), with accumulators filling the vector register
+/// file (32 zmm, 16 ymm or 16 xmm across the streams): with 4 zmm in all, one core read
+/// DRAM about 30% slower in testing.
+pub fn read_sum(isa: Isa, shape: ReadShape, data: &[u64]) -> u64 {
     macro_rules! shaped {
         ($pf:literal) => {
             match (isa.level(), shape.streams) {
