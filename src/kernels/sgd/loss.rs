@@ -43,39 +43,37 @@ impl Loss {
     }
 
     /// For each prediction `zs[i]` of row `rows[i]`: adds ℓ(z, y) in `f64` to `loss`,
-    /// then replaces z by [`Loss::dz`] against the row's label. Returns `acc` plus the
-    /// derivatives, summed in order in `T`, and the new `loss`. The loss is chosen once for
-    /// all the rows, and both sums stay in registers.
+    /// then replaces z by [`Loss::dz`] against the row's label, and returns the new
+    /// `loss`. The loss is chosen once for all the rows.
     #[inline(always)]
-    pub fn dz_rows<T: Real>(
-        self,
-        zs: &mut [T],
-        rows: &[usize],
-        labels: &[f32],
-        acc: T,
-        loss: f64,
-    ) -> (T, f64) {
+    pub fn dz_rows<T: Real>(self, zs: &mut [T], rows: &[usize], labels: &[f32], loss: f64) -> f64 {
         #[inline(always)]
         fn each<T: Real>(
             zs: &mut [T],
             rows: &[usize],
             labels: &[f32],
-            (mut acc, mut loss): (T, f64),
+            mut loss: f64,
             loss_fn: Loss,
-        ) -> (T, f64) {
-            for (zi, &r) in zs.iter_mut().zip(rows) {
-                let y = labels[r];
-                loss += loss_fn.value(zi.to_f64(), f64::from(y));
-                *zi = loss_fn.dz(*zi, T::from_f32(y));
-                acc = acc.add(*zi);
+        ) -> f64 {
+            // The losses of up to 16 rows first, then their sum in order: the running sum
+            // is one chain of dependent adds through the whole pass, and kept apart from
+            // the rows' work it waits on none of it.
+            for (zc, rc) in zs.chunks_mut(16).zip(rows.chunks(16)) {
+                let mut ls = [0f64; 16];
+                for ((zi, &r), l) in zc.iter_mut().zip(rc).zip(&mut ls) {
+                    let y = labels[r];
+                    *l = loss_fn.value(zi.to_f64(), f64::from(y));
+                    *zi = loss_fn.dz(*zi, T::from_f32(y));
+                }
+                loss = ls[..zc.len()].iter().fold(loss, |s, &l| s + l);
             }
-            (acc, loss)
+            loss
         }
         // One loop per loss, each with its arithmetic inlined.
         match self {
-            Loss::Squared => each(zs, rows, labels, (acc, loss), Loss::Squared),
-            Loss::Logistic => each(zs, rows, labels, (acc, loss), Loss::Logistic),
-            Loss::Hinge => each(zs, rows, labels, (acc, loss), Loss::Hinge),
+            Loss::Squared => each(zs, rows, labels, loss, Loss::Squared),
+            Loss::Logistic => each(zs, rows, labels, loss, Loss::Logistic),
+            Loss::Hinge => each(zs, rows, labels, loss, Loss::Hinge),
         }
     }
 

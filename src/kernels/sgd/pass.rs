@@ -280,7 +280,7 @@ pub(super) fn stream<S: Trains, V: Wide>(
     // none at all, which in turn beat hinting the row whole by about 8 % at B = 16
     // (measured on the bench).
     let ahead = if plan.stride < PREFETCH_BYTES {
-        (PREFETCH_BYTES / plan.stride).max(2) as usize
+        (PREFETCH_BYTES / plan.stride).max(4) as usize
     } else {
         1
     };

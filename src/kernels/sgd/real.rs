@@ -224,11 +224,11 @@ impl<'a, T: Real, const FTZ: bool> FloatTrainer<'a, T, FTZ> {
             // f32 without flush: the derivatives first, then the gradient sums column block
             // by column block (the same operations in the same order per coordinate).
             let (g, gb) = self.g.split_at_mut(d);
-            let acc = gb.first().copied().unwrap_or(T::ZERO);
-            let (acc, sum) = self.loss.dz_rows(&mut zs, mb, labels, acc, loss);
-            loss = sum;
+            loss = self.loss.dz_rows(&mut zs, mb, labels, loss);
+            // The bias's gradient: the derivatives summed in order, after them (summed
+            // beside them, the sum was a second chain through every row).
             if let Some(gb) = gb.first_mut() {
-                *gb = acc;
+                *gb = zs.iter().fold(*gb, |a, &z| a.add(z));
             }
             let (g, s) = (T::as_f32s_mut(g), T::as_f32s(&zs));
             v.add_scaled(g.expect("f32"), all, d, mb, s.expect("f32"));

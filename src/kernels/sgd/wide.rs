@@ -50,6 +50,15 @@ pub(super) trait Wide: Copy {
         (self.dot16(xa, w), self.dot16(xb, w))
     }
 
+    /// [`Wide::dot16`] of four rows with the same `w`; a form may step the four together,
+    /// sharing each load of `w` and the work of the four trees.
+    #[inline(always)]
+    fn dot16_quad(self, x: [&[f32]; 4], w: &[f32]) -> [f32; 4] {
+        let (a, b) = self.dot16_pair(x[0], x[1], w);
+        let (c, d) = self.dot16_pair(x[2], x[3], w);
+        [a, b, c, d]
+    }
+
     /// `z[i] = ` [`Wide::dot16`] of row `rows[i]` of `x` (rows of `d` values) and the
     /// model's first `d` weights, plus its bias `model[d]` if it has one, prefetching row
     /// `ahead[i]` while row `rows[i]` is read. The bias is added here, one value at a
@@ -72,20 +81,29 @@ pub(super) trait Wide: Copy {
             }
         };
         let bias = |dot: f32| b.map_or(dot, |b| dot + b);
-        let paired = if d <= PAIRED_MAX {
-            rows.len() / 2 * 2
+        // Rows in fours, then a pair, then one at a time.
+        let (quads, paired) = if d <= PAIRED_MAX {
+            (rows.len() / 4 * 4, rows.len() / 2 * 2)
         } else {
-            0
+            (0, 0)
         };
-        for (i, (r, zp)) in rows[..paired]
-            .chunks_exact(2)
-            .zip(z.chunks_exact_mut(2))
+        for (i, (r, zq)) in rows[..quads]
+            .chunks_exact(4)
+            .zip(z.chunks_exact_mut(4))
             .enumerate()
         {
-            fetch(2 * i);
-            fetch(2 * i + 1);
+            (0..4).for_each(|k| fetch(4 * i + k));
+            let zs = self.dot16_quad([row(r[0]), row(r[1]), row(r[2]), row(r[3])], w);
+            for (zk, dot) in zq.iter_mut().zip(zs) {
+                *zk = bias(dot);
+            }
+        }
+        if paired > quads {
+            let (r, i) = (&rows[quads..paired], quads);
+            fetch(i);
+            fetch(i + 1);
             let (za, zb) = self.dot16_pair(row(r[0]), row(r[1]), w);
-            (zp[0], zp[1]) = (bias(za), bias(zb));
+            (z[i], z[i + 1]) = (bias(za), bias(zb));
         }
         for (i, (&r, zi)) in rows.iter().zip(z.iter_mut()).enumerate().skip(paired) {
             *zi = bias(self.dot16_fetching(row(r), w, ahead.get(i).map(|&n| row(n))));
@@ -363,45 +381,128 @@ static LANE_MASK: [i32; 32] = {
     m
 };
 
+/// The lane sums of `R` rows of `n` values with `w`, row by row as (lanes 0–7, lanes
+/// 8–15): each step of 16 columns adds its products, the last step's masked to `n`. One
+/// load of `w` serves all `R` rows.
+///
+/// # Safety
+/// AVX2, and every row and `w` readable for `n` values.
+#[cfg(target_arch = "x86_64")]
+#[inline(always)]
+unsafe fn lane_sums_avx2<const R: usize>(
+    rows: [*const f32; R],
+    w: *const f32,
+    n: usize,
+) -> [(std::arch::x86_64::__m256, std::arch::x86_64::__m256); R] {
+    use std::arch::x86_64::*;
+    // SAFETY: AVX2 and `n` readable values, by this function's contract: full steps read
+    // below `n`, the last one is masked to `n` by a window of `LANE_MASK`.
+    unsafe {
+        let mut acc = [(_mm256_setzero_ps(), _mm256_setzero_ps()); R];
+        let mut i = 0;
+        while i + 16 <= n {
+            let (wl, wh) = (_mm256_loadu_ps(w.add(i)), _mm256_loadu_ps(w.add(i + 8)));
+            for (a, &x) in acc.iter_mut().zip(&rows) {
+                let pl = _mm256_mul_ps(_mm256_loadu_ps(x.add(i)), wl);
+                let ph = _mm256_mul_ps(_mm256_loadu_ps(x.add(i + 8)), wh);
+                *a = (_mm256_add_ps(a.0, pl), _mm256_add_ps(a.1, ph));
+            }
+            i += 16;
+        }
+        if i < n {
+            let mp = LANE_MASK.as_ptr().add(16 - (n - i));
+            let (ml, mh) = (
+                _mm256_loadu_si256(mp.cast()),
+                _mm256_loadu_si256(mp.add(8).cast()),
+            );
+            let (wl, wh) = (
+                _mm256_maskload_ps(w.add(i), ml),
+                _mm256_maskload_ps(w.add(i + 8), mh),
+            );
+            for (a, &x) in acc.iter_mut().zip(&rows) {
+                let pl = _mm256_mul_ps(_mm256_maskload_ps(x.add(i), ml), wl);
+                let ph = _mm256_mul_ps(_mm256_maskload_ps(x.add(i + 8), mh), wh);
+                *a = (_mm256_add_ps(a.0, pl), _mm256_add_ps(a.1, ph));
+            }
+        }
+        acc
+    }
+}
+
+/// Lane pairs summed: `[a0+a1, a2+a3, b0+b1, b2+b3]` in each 128-bit half, as one
+/// horizontal add, from two shuffles and one vertical add.
+///
+/// # Safety
+/// AVX.
+#[cfg(target_arch = "x86_64")]
+#[inline(always)]
+unsafe fn pair_sums(
+    a: std::arch::x86_64::__m256,
+    b: std::arch::x86_64::__m256,
+) -> std::arch::x86_64::__m256 {
+    use std::arch::x86_64::*;
+    // SAFETY: AVX, by this function's contract.
+    unsafe {
+        _mm256_add_ps(
+            _mm256_shuffle_ps::<0b10_00_10_00>(a, b),
+            _mm256_shuffle_ps::<0b11_01_11_01>(a, b),
+        )
+    }
+}
+
+/// The 16-lane trees of four rows' lane sums side by side. Each sum adds the same two
+/// terms as the one-row tree (addition commutes exactly), level by level:
+///
+/// ```text
+///   pairs of (lo_r, hi_r)        r:  [0+1, 2+3, 8+9, 10+11 | 4+5, 6+7, 12+13, 14+15]
+///   pairs of (r, r+1)          r,r+1: [0–3, 8–11, …(r+1)   | 4–7, 12–15, …(r+1)]
+///   low half + high half       [0–7, 8–15] for rows 0, 1 | rows 2, 3
+///   pairs                      [0–15] for rows 0, 1 | rows 2, 3
+/// ```
+///
+/// # Safety
+/// AVX.
+#[cfg(target_arch = "x86_64")]
+#[inline(always)]
+unsafe fn trees4(s: [(std::arch::x86_64::__m256, std::arch::x86_64::__m256); 4]) -> [f32; 4] {
+    use std::arch::x86_64::*;
+    // SAFETY: AVX, by this function's contract.
+    unsafe {
+        // No closure or `map` here: they would not share the caller's instruction set.
+        let q = [
+            pair_sums(s[0].0, s[0].1),
+            pair_sums(s[1].0, s[1].1),
+            pair_sums(s[2].0, s[2].1),
+            pair_sums(s[3].0, s[3].1),
+        ];
+        let (r01, r23) = (pair_sums(q[0], q[1]), pair_sums(q[2], q[3]));
+        let halves = _mm256_add_ps(
+            _mm256_permute2f128_ps::<0x20>(r01, r23),
+            _mm256_permute2f128_ps::<0x31>(r01, r23),
+        );
+        // Lanes 0, 1, 4, 5 now hold rows 0, 1, 2, 3.
+        let t = pair_sums(halves, halves);
+        let mut out = [0f32; 4];
+        _mm_storeu_ps(
+            out.as_mut_ptr(),
+            _mm_castpd_ps(_mm_unpacklo_pd(
+                _mm_castps_pd(_mm256_castps256_ps128(t)),
+                _mm_castps_pd(_mm256_extractf128_ps::<1>(t)),
+            )),
+        );
+        out
+    }
+}
+
 #[cfg(target_arch = "x86_64")]
 impl Wide for Avx2 {
     #[inline(always)]
     fn dot16(self, x: &[f32], w: &[f32]) -> f32 {
         use std::arch::x86_64::*;
         let n = x.len().min(w.len());
-        // SAFETY: the token proves AVX2 (module doc); every load reads within `x[..n]`
-        // and `w[..n]` (full steps below `n`, masked loads for the rest) or `LANE_MASK`.
+        // SAFETY: the token proves AVX2 (module doc); `x` and `w` hold at least `n` values.
         unsafe {
-            let (xp, wp) = (x.as_ptr(), w.as_ptr());
-            let (mut lo, mut hi) = (_mm256_setzero_ps(), _mm256_setzero_ps());
-            let mut i = 0;
-            while i + 16 <= n {
-                let pl = _mm256_mul_ps(_mm256_loadu_ps(xp.add(i)), _mm256_loadu_ps(wp.add(i)));
-                let ph = _mm256_mul_ps(
-                    _mm256_loadu_ps(xp.add(i + 8)),
-                    _mm256_loadu_ps(wp.add(i + 8)),
-                );
-                lo = _mm256_add_ps(lo, pl);
-                hi = _mm256_add_ps(hi, ph);
-                i += 16;
-            }
-            if i < n {
-                let mp = LANE_MASK.as_ptr().add(16 - (n - i));
-                let (ml, mh) = (
-                    _mm256_loadu_si256(mp.cast()),
-                    _mm256_loadu_si256(mp.add(8).cast()),
-                );
-                let pl = _mm256_mul_ps(
-                    _mm256_maskload_ps(xp.add(i), ml),
-                    _mm256_maskload_ps(wp.add(i), ml),
-                );
-                let ph = _mm256_mul_ps(
-                    _mm256_maskload_ps(xp.add(i + 8), mh),
-                    _mm256_maskload_ps(wp.add(i + 8), mh),
-                );
-                lo = _mm256_add_ps(lo, pl);
-                hi = _mm256_add_ps(hi, ph);
-            }
+            let [(lo, hi)] = lane_sums_avx2([x.as_ptr()], w.as_ptr(), n);
             let half = |v: __m256| {
                 let v = _mm256_add_ps(v, _mm256_permute_ps::<0b10_11_00_01>(v));
                 let v = _mm256_add_ps(v, _mm256_permute_ps::<0b01_00_11_10>(v));
@@ -410,6 +511,19 @@ impl Wide for Avx2 {
             };
             half(lo) + half(hi)
         }
+    }
+
+    /// The four rows stepped together, each load of `w` serving all four, and their trees
+    /// taken side by side ([`trees4`]).
+    #[inline(always)]
+    fn dot16_quad(self, x: [&[f32]; 4], w: &[f32]) -> [f32; 4] {
+        let n = w.len().min(x[0].len());
+        if x.iter().any(|r| r.len() != x[0].len()) {
+            return x.map(|r| self.dot16(r, w));
+        }
+        // SAFETY: the token proves AVX2 (module doc); the four rows are of equal length,
+        // so each holds at least `n` values, as `w` does.
+        unsafe { trees4(lane_sums_avx2(x.map(<[f32]>::as_ptr), w.as_ptr(), n)) }
     }
 
     /// Column blocks of 32 in four registers across all the rows (as the AVX-512 form);
@@ -503,35 +617,36 @@ mod tests {
         }
     }
 
-    /// Every form's pair of dot products as a plain function.
-    type PairForm = Box<dyn Fn(&[f32], &[f32], &[f32]) -> (f32, f32)>;
+    /// Every form's dot products of four rows as a plain function: its pairs (rows 0, 1
+    /// and 2, 3) and its quad.
+    type GroupForm = Box<dyn Fn([&[f32]; 4], &[f32]) -> [f32; 4]>;
 
-    /// Every pair form this CPU has.
-    fn pair_forms() -> Vec<PairForm> {
-        every_form!(|f| vec![Box::new(move |a: &[f32], b: &[f32], w: &[f32]| {
-            f.dot16_pair(a, b, w)
-        }) as PairForm])
+    /// Every pair and quad form this CPU has.
+    fn group_forms() -> Vec<GroupForm> {
+        every_form!(|f| vec![
+            Box::new(move |x: [&[f32]; 4], w: &[f32]| {
+                let ((a, b), (c, d)) = (f.dot16_pair(x[0], x[1], w), f.dot16_pair(x[2], x[3], w));
+                [a, b, c, d]
+            }) as GroupForm,
+            Box::new(move |x: [&[f32]; 4], w: &[f32]| f.dot16_quad(x, w)),
+        ])
     }
 
     proptest! {
-        /// Every form's pair of dot products equals the scalar tree of each row bit for
-        /// bit, at every row length around the lane count.
+        /// Every form's pairs and quads of dot products equal the scalar tree of each row
+        /// bit for bit, at every row length around the lane count.
         #[test]
-        fn pairs_equal_the_scalar_tree(
-            xs in prop::collection::vec(-1e6f32..1e6, 0..160),
+        fn groups_equal_the_scalar_tree(
+            xs in prop::collection::vec(-1e6f32..1e6, 0..320),
             w in prop::collection::vec(-1e3f32..1e3, 80),
             exp in prop::collection::vec(-20i32..20, 80),
         ) {
-            let n = xs.len() / 2;
-            let (xa, xb) = (&xs[..n], &xs[n..2 * n]);
+            let n = xs.len() / 4;
+            let x: [&[f32]; 4] = std::array::from_fn(|k| &xs[k * n..(k + 1) * n]);
             let w: Vec<f32> = w.iter().zip(&exp).map(|(v, &e)| v * 2f32.powi(e)).collect();
-            let want = (
-                tree::dot::<f32, false>(xa, &w[..n], 16).to_bits(),
-                tree::dot::<f32, false>(xb, &w[..n], 16).to_bits(),
-            );
-            for f in pair_forms() {
-                let (a, b) = f(xa, xb, &w[..n]);
-                prop_assert_eq!((a.to_bits(), b.to_bits()), want);
+            let want = x.map(|r| tree::dot::<f32, false>(r, &w[..n], 16).to_bits());
+            for f in group_forms() {
+                prop_assert_eq!(f(x, &w[..n]).map(f32::to_bits), want);
             }
         }
     }
