@@ -273,8 +273,9 @@ pub(super) fn stream<S: Trains, V: Wide>(
     (hyper, updates, snapshots, loss_sum): (&Hyper, &mut u64, &mut Vec<Model>, &mut f64),
 ) {
     let p = plan.p;
-    // Rows shorter than the distance are hinted whole, at least two rows ahead (the
-    // predictions take rows in pairs); longer ones one row ahead, which the float
+    // Rows shorter than the distance are hinted whole, at least four rows ahead (the
+    // predictions take rows in fours, and the hints for a four are issued just before
+    // it); longer ones one row ahead, which the float
     // trainer's widest form hints a line per step of the row before's dot product. At
     // 1024 values a row, spreading the hints gained 2–5 % at B = 16 and 15 % at B = 1 over
     // none at all, which in turn beat hinting the row whole by about 8 % at B = 16
