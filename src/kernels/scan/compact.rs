@@ -42,15 +42,18 @@ const SPARSE: u32 = 3;
 #[inline(always)]
 fn table_word(win: &mut [u8; 4 * (64 + 8)], base: u32, m: u64) -> usize {
     let mut at = 0;
-    for (k, &byte) in m.to_le_bytes().iter().enumerate() {
-        let b = base.wrapping_add(8 * k as u32);
+    // The byte's first id in all eight lanes, stepped by 8 a byte: a vector add, where a
+    // fresh base each byte was a move and a broadcast.
+    let mut b = [base; 8];
+    for &byte in &m.to_le_bytes() {
         let mut v = [0u8; 32];
-        for (d, &p) in v.chunks_exact_mut(4).zip(&POS[usize::from(byte)]) {
-            d.copy_from_slice(&b.wrapping_add(u32::from(p)).to_le_bytes());
+        for ((d, &p), &bj) in v.chunks_exact_mut(4).zip(&POS[usize::from(byte)]).zip(&b) {
+            d.copy_from_slice(&bj.wrapping_add(u32::from(p)).to_le_bytes());
         }
         // `at` is at most 4 * 56 before the last byte, so the 32 bytes fit in `win`.
         win[at..at + 32].copy_from_slice(&v);
         at += 4 * byte.count_ones() as usize;
+        b = b.map(|bj| bj.wrapping_add(8));
     }
     at
 }
