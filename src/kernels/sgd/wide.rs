@@ -20,10 +20,11 @@
 use super::tree;
 use crate::kernels::isa::{Isa, Level};
 
-/// The longest rows whose predictions [`Wide::dots16`] takes in pairs. Pairs gain 4–6 %
-/// at 64–256 values a row, where one row's chain of lane sums is short of filling the
-/// core; at 1024 they lost 5–10 % (measured on the bench, with and without software
-/// prefetching).
+/// The longest rows whose predictions [`Wide::dots16`] takes in fours (and a last pair).
+/// Pairs gained 4–6 % at 64–256 values a row, where one row's chain of lane sums is short
+/// of filling the core, and lost 5–10 % at 1024 (measured on the bench, with and without
+/// software prefetching); fours on AVX2 matched or beat pairs at 256 (42 % of read against
+/// 39–41 %, alternating builds).
 const PAIRED_MAX: usize = 512;
 
 /// An instruction set's form of the 16-lane dot product and of the gradient sum.
